@@ -1,0 +1,4 @@
+//! The `quarry` command line.
+fn main() {
+    println!("quarry");
+}
