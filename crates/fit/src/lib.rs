@@ -1,0 +1,1 @@
+//! Placeholder: this crate's issue has not landed yet.
