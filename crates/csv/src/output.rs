@@ -1,0 +1,146 @@
+//! Atomic output files shared by both writers: data go to a temporary file
+//! beside the target and are renamed into place only when the writer
+//! finishes, so a crash or an error never leaves a half-written output under
+//! the final name.
+
+use std::fs::{self, File};
+use std::io::{self, BufWriter, Stdout, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+
+use flate2::write::GzEncoder;
+use flate2::Compression;
+
+use crate::CsvError;
+
+/// The display name used for `-` as an output.
+pub(crate) const STDOUT_NAME: &str = "<stdout>";
+
+/// Where bytes go: stdout or a temporary file, optionally gzipped.
+enum Sink {
+    Stdout(BufWriter<Stdout>),
+    File(BufWriter<File>),
+    GzFile(GzEncoder<BufWriter<File>>),
+}
+
+/// Removes the temporary file on drop unless the output was committed.
+struct TempGuard {
+    tmp: PathBuf,
+    committed: bool,
+}
+
+impl Drop for TempGuard {
+    fn drop(&mut self) {
+        if !self.committed {
+            let _ = fs::remove_file(&self.tmp);
+        }
+    }
+}
+
+/// An output byte stream that becomes visible under its final name only on
+/// [`AtomicOutput::commit`].
+pub(crate) struct AtomicOutput {
+    // Field order matters: the sink (and its file handle) drops before the
+    // guard removes the temporary file.
+    sink: Sink,
+    target: Option<(PathBuf, TempGuard)>,
+    name: String,
+}
+
+static COUNTER: AtomicU64 = AtomicU64::new(0);
+
+impl AtomicOutput {
+    /// Opens `path` for writing: `-` is stdout; a `.gz` suffix gzips.
+    pub(crate) fn create(path: &Path) -> Result<AtomicOutput, CsvError> {
+        let gz = path.extension().is_some_and(|e| e == "gz");
+        if path.as_os_str() == "-" {
+            let out = BufWriter::new(io::stdout());
+            return Ok(AtomicOutput {
+                sink: Sink::Stdout(out),
+                target: None,
+                name: STDOUT_NAME.to_string(),
+            });
+        }
+        let name = path.display().to_string();
+        let file_name = path.file_name().ok_or_else(|| CsvError::Write {
+            file: name.clone(),
+            source: io::Error::new(io::ErrorKind::InvalidInput, "not a file name"),
+        })?;
+        let dir = match path.parent() {
+            Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+            _ => PathBuf::from("."),
+        };
+        let n = COUNTER.fetch_add(1, Ordering::Relaxed);
+        let tmp = dir.join(format!(
+            ".{}.tmp-{}-{n}",
+            file_name.to_string_lossy(),
+            std::process::id()
+        ));
+        let file = File::create(&tmp).map_err(|source| CsvError::Write {
+            file: name.clone(),
+            source,
+        })?;
+        let guard = TempGuard {
+            tmp,
+            committed: false,
+        };
+        let buf = BufWriter::new(file);
+        let sink = if gz {
+            Sink::GzFile(GzEncoder::new(buf, Compression::default()))
+        } else {
+            Sink::File(buf)
+        };
+        Ok(AtomicOutput {
+            sink,
+            target: Some((path.to_path_buf(), guard)),
+            name,
+        })
+    }
+
+    /// The name used in error messages.
+    pub(crate) fn name(&self) -> &str {
+        &self.name
+    }
+
+    /// Flushes everything, closes the file and renames it into place.
+    pub(crate) fn commit(self) -> Result<(), CsvError> {
+        let AtomicOutput { sink, target, name } = self;
+        let werr = |source| CsvError::Write {
+            file: name.clone(),
+            source,
+        };
+        match sink {
+            Sink::Stdout(mut w) => w.flush().map_err(werr)?,
+            Sink::File(w) => finish_file(w).map_err(werr)?,
+            Sink::GzFile(gz) => finish_file(gz.finish().map_err(werr)?).map_err(werr)?,
+        }
+        if let Some((path, mut guard)) = target {
+            fs::rename(&guard.tmp, &path).map_err(werr)?;
+            guard.committed = true;
+        }
+        Ok(())
+    }
+}
+
+fn finish_file(w: BufWriter<File>) -> io::Result<()> {
+    let file = w.into_inner().map_err(|e| e.into_error())?;
+    file.sync_all()
+}
+
+impl Write for AtomicOutput {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        match &mut self.sink {
+            Sink::Stdout(w) => w.write(buf),
+            Sink::File(w) => w.write(buf),
+            Sink::GzFile(w) => w.write(buf),
+        }
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        match &mut self.sink {
+            Sink::Stdout(w) => w.flush(),
+            Sink::File(w) => w.flush(),
+            Sink::GzFile(w) => w.flush(),
+        }
+    }
+}

@@ -1,0 +1,295 @@
+//! Writers: events back into quarry's long-form CSV, and per-event result
+//! rows of any serde struct. Both write atomically (see `output`).
+
+use std::path::Path;
+
+use quarry_event::{Event, Lepton};
+use quarry_lorentz::FourMomentum;
+use serde::Serialize;
+
+use crate::output::AtomicOutput;
+use crate::CsvError;
+
+/// Column order written by [`EventWriter`].
+pub const EVENT_COLUMNS: [&str; 13] = [
+    "event",
+    "kind",
+    "pt",
+    "eta",
+    "phi",
+    "mass",
+    "btag",
+    "charge",
+    "truth",
+    "weight",
+    "met_cov_xx",
+    "met_cov_xy",
+    "met_cov_yy",
+];
+
+/// Formats an `f64` so that parsing the text gives back the same bits:
+/// plain decimal for ordinary magnitudes, exponent form for very large or
+/// very small ones (Rust's `{}` and `{:e}` both print the shortest
+/// round-tripping digits).
+///
+/// ```
+/// use quarry_csv::format_f64;
+/// assert_eq!(format_f64(45.25), "45.25");
+/// assert_eq!(format_f64(1e-9), "1e-9");
+/// let x = 0.1 + 0.2;
+/// assert_eq!(format_f64(x).parse::<f64>().unwrap(), x);
+/// ```
+pub fn format_f64(x: f64) -> String {
+    let a = x.abs();
+    if a == 0.0 || (1e-5..1e16).contains(&a) {
+        format!("{x}")
+    } else {
+        format!("{x:e}")
+    }
+}
+
+/// Writes [`Event`]s as quarry long-form CSV (see `docs/csv-format.md`), one
+/// row per object plus one `met` row per event (always written, so that an
+/// event without objects survives a round trip). Objects are written with
+/// `mass` (not `energy`); `weight` is repeated on every row.
+///
+/// The output appears under its final name only after
+/// [`finish`](Self::finish); dropping the writer without finishing removes
+/// the temporary file.
+///
+/// ```
+/// use quarry_csv::EventWriter;
+/// use quarry_event::{Event, Jet, Met};
+/// use quarry_lorentz::FourMomentum;
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("toy.csv");
+/// let mut e = Event::new(1);
+/// e.jets.push(Jet::new(FourMomentum::from_pt_eta_phi_m(50.0, 0.5, 1.0, 5.0), 0.8));
+/// e.met = Met::new(20.0, -5.0);
+/// let mut w = EventWriter::create(&path).unwrap();
+/// w.write(&e).unwrap();
+/// w.finish().unwrap();
+/// let text = std::fs::read_to_string(&path).unwrap();
+/// assert!(text.starts_with("event,kind,pt,eta,phi,mass,"));
+/// assert_eq!(text.lines().count(), 3); // header, jet, met
+/// ```
+pub struct EventWriter {
+    csv: csv::Writer<AtomicOutput>,
+    name: String,
+    fields: Vec<String>,
+}
+
+impl EventWriter {
+    /// Creates the output: `-` is stdout, a `.gz` suffix gzips. Writes the
+    /// header line.
+    pub fn create(path: &Path) -> Result<EventWriter, CsvError> {
+        let out = AtomicOutput::create(path)?;
+        let name = out.name().to_string();
+        let mut csv = csv::WriterBuilder::new()
+            .has_headers(false)
+            .from_writer(out);
+        csv.write_record(EVENT_COLUMNS)
+            .map_err(|e| csv_write_error(&name, e))?;
+        Ok(EventWriter {
+            csv,
+            name,
+            fields: vec![String::new(); EVENT_COLUMNS.len()],
+        })
+    }
+
+    /// Writes one event. Fails (writing nothing for this event) if any value
+    /// is non-finite or a four-momentum has `m² < −1e−9·E²` (beyond rounding).
+    pub fn write(&mut self, event: &Event) -> Result<(), CsvError> {
+        let weight = finite(&self.name, event.id, "weight", event.weight)?;
+        let mut rows: Vec<[String; 13]> =
+            Vec::with_capacity(event.jets.len() + event.fat_jets.len() + event.n_leptons() + 1);
+        let id = event.id.to_string();
+        let weight = format_f64(weight);
+        let blank = || -> [String; 13] { Default::default() };
+        let object = |kind: &str, p4: &FourMomentum| -> Result<[String; 13], CsvError> {
+            let (pt, eta, phi, m) = kinematics(&self.name, event.id, kind, p4)?;
+            let mut r = blank();
+            r[0] = id.clone();
+            r[1] = kind.to_string();
+            r[2] = format_f64(pt);
+            r[3] = format_f64(eta);
+            r[4] = format_f64(phi);
+            r[5] = format_f64(m);
+            r[9] = weight.clone();
+            Ok(r)
+        };
+        for j in &event.jets {
+            let mut r = object("jet", &j.p4)?;
+            r[6] = format_f64(finite(&self.name, event.id, "btag", j.btag)?);
+            r[8] = j.truth.map(|t| t.to_string()).unwrap_or_default();
+            rows.push(r);
+        }
+        for j in &event.fat_jets {
+            let mut r = object("fatjet", &j.p4)?;
+            r[8] = j.truth.map(|t| t.to_string()).unwrap_or_default();
+            rows.push(r);
+        }
+        let lepton = |kind: &str, l: &Lepton| -> Result<[String; 13], CsvError> {
+            let mut r = object(kind, &l.p4)?;
+            r[7] = match l.charge {
+                0 => String::new(),
+                c => c.to_string(),
+            };
+            r[8] = l.truth.map(|t| t.to_string()).unwrap_or_default();
+            Ok(r)
+        };
+        for l in &event.electrons {
+            rows.push(lepton("electron", l)?);
+        }
+        for l in &event.muons {
+            rows.push(lepton("muon", l)?);
+        }
+        let met = &event.met;
+        let (mpx, mpy) = (
+            finite(&self.name, event.id, "met px", met.px)?,
+            finite(&self.name, event.id, "met py", met.py)?,
+        );
+        let mut r = blank();
+        r[0] = id.clone();
+        r[1] = "met".to_string();
+        r[2] = format_f64(mpx.hypot(mpy));
+        r[4] = format_f64(met.phi());
+        r[9] = weight.clone();
+        if let Some(cov) = met.cov {
+            for (k, v) in cov.iter().enumerate() {
+                r[10 + k] = format_f64(finite(&self.name, event.id, "met covariance", *v)?);
+            }
+        }
+        rows.push(r);
+        for r in &rows {
+            for (f, v) in self.fields.iter_mut().zip(r.iter()) {
+                f.clone_from(v);
+            }
+            self.csv
+                .write_record(&self.fields)
+                .map_err(|e| csv_write_error(&self.name, e))?;
+        }
+        Ok(())
+    }
+
+    /// Flushes, closes and renames the output into place.
+    pub fn finish(self) -> Result<(), CsvError> {
+        finish_csv(self.csv, &self.name)
+    }
+}
+
+/// pt, eta, phi and mass of an object to write. Writes eta 0 for pt = 0
+/// (the direction is undefined and the reader bounds |eta|), and clamps a
+/// rounding-level negative m² to mass 0.
+fn kinematics(
+    file: &str,
+    event: u64,
+    kind: &str,
+    p4: &FourMomentum,
+) -> Result<(f64, f64, f64, f64), CsvError> {
+    if !p4.is_finite() {
+        return Err(CsvError::Value {
+            file: file.to_string(),
+            event,
+            message: format!("{kind} has a non-finite four-momentum {p4:?}"),
+        });
+    }
+    let pt = p4.pt();
+    let eta = if pt > 0.0 { p4.eta() } else { 0.0 };
+    let m2 = p4.m2();
+    let m = if m2 >= 0.0 {
+        m2.sqrt()
+    } else if m2 >= -1e-9 * p4.e() * p4.e() {
+        0.0
+    } else {
+        return Err(CsvError::Value {
+            file: file.to_string(),
+            event,
+            message: format!("{kind} has m² = {m2} < 0 (unphysical four-momentum {p4:?})"),
+        });
+    };
+    Ok((pt, eta, p4.phi(), m))
+}
+
+fn finite(file: &str, event: u64, what: &str, x: f64) -> Result<f64, CsvError> {
+    if x.is_finite() {
+        Ok(x)
+    } else {
+        Err(CsvError::Value {
+            file: file.to_string(),
+            event,
+            message: format!("{what} is {x}"),
+        })
+    }
+}
+
+fn csv_write_error(name: &str, e: csv::Error) -> CsvError {
+    match e.into_kind() {
+        csv::ErrorKind::Io(source) => CsvError::Write {
+            file: name.to_string(),
+            source,
+        },
+        other => CsvError::Value {
+            file: name.to_string(),
+            event: 0,
+            message: format!("{other:?}"),
+        },
+    }
+}
+
+fn finish_csv(csv: csv::Writer<AtomicOutput>, name: &str) -> Result<(), CsvError> {
+    let out = csv.into_inner().map_err(|e| CsvError::Write {
+        file: name.to_string(),
+        source: std::io::Error::new(e.error().kind(), e.error().to_string()),
+    })?;
+    out.commit()
+}
+
+/// Writes rows of any `serde::Serialize` struct as CSV, columns in the
+/// struct's field order, header from the field names (written with the first
+/// row: an output with no rows is an empty file). Same atomic behaviour as
+/// [`EventWriter`]: `-` is stdout, `.gz` gzips, the file appears only on
+/// [`finish`](Self::finish).
+///
+/// ```
+/// #[derive(serde::Serialize)]
+/// struct Row { event: u64, status: &'static str, m_top: f64 }
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("out.csv");
+/// let mut w = quarry_csv::RowWriter::create(&path).unwrap();
+/// w.write(&Row { event: 1, status: "ok", m_top: 172.5 }).unwrap();
+/// assert!(!path.exists()); // not visible before finish
+/// w.finish().unwrap();
+/// let text = std::fs::read_to_string(&path).unwrap();
+/// assert_eq!(text, "event,status,m_top\n1,ok,172.5\n");
+/// ```
+pub struct RowWriter<T: Serialize> {
+    csv: csv::Writer<AtomicOutput>,
+    name: String,
+    _row: std::marker::PhantomData<fn(&T)>,
+}
+
+impl<T: Serialize> RowWriter<T> {
+    /// Creates the output: `-` is stdout, a `.gz` suffix gzips.
+    pub fn create(path: &Path) -> Result<RowWriter<T>, CsvError> {
+        let out = AtomicOutput::create(path)?;
+        let name = out.name().to_string();
+        Ok(RowWriter {
+            csv: csv::WriterBuilder::new().has_headers(true).from_writer(out),
+            name,
+            _row: std::marker::PhantomData,
+        })
+    }
+
+    /// Writes one row.
+    pub fn write(&mut self, row: &T) -> Result<(), CsvError> {
+        self.csv
+            .serialize(row)
+            .map_err(|e| csv_write_error(&self.name, e))
+    }
+
+    /// Flushes, closes and renames the output into place.
+    pub fn finish(self) -> Result<(), CsvError> {
+        finish_csv(self.csv, &self.name)
+    }
+}
