@@ -18,8 +18,13 @@
 
 mod error;
 mod output;
+mod reader;
 mod writer;
 
 pub use error::{BadEvent, BadReason, CsvError, FieldError};
 pub use quarry_event::Event;
+pub use reader::{
+    ErrorPolicy, EventReader, ReadOptions, ReadSummary, Record, DEFAULT_MAX_OBJECTS,
+    ENERGY_ROUNDING_TOLERANCE, MAX_ABS_ETA, MAX_ABS_PHI, STDIN_NAME,
+};
 pub use writer::{format_f64, EventWriter, RowWriter, EVENT_COLUMNS};

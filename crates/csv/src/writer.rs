@@ -58,7 +58,7 @@ pub fn format_f64(x: f64) -> String {
 /// the temporary file.
 ///
 /// ```
-/// use quarry_csv::EventWriter;
+/// use quarry_csv::{EventReader, EventWriter, ReadOptions, Record};
 /// use quarry_event::{Event, Jet, Met};
 /// use quarry_lorentz::FourMomentum;
 /// let dir = tempfile::tempdir().unwrap();
@@ -72,6 +72,11 @@ pub fn format_f64(x: f64) -> String {
 /// let text = std::fs::read_to_string(&path).unwrap();
 /// assert!(text.starts_with("event,kind,pt,eta,phi,mass,"));
 /// assert_eq!(text.lines().count(), 3); // header, jet, met
+/// let mut r = EventReader::open(&path, ReadOptions::default()).unwrap();
+/// match r.next().unwrap().unwrap() {
+///     Record::Good(back) => assert!((back.jets[0].p4.pt() - 50.0).abs() < 1e-9),
+///     Record::Bad(bad) => panic!("{bad}"),
+/// }
 /// ```
 pub struct EventWriter {
     csv: csv::Writer<AtomicOutput>,

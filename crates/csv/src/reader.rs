@@ -1,0 +1,1031 @@
+//! The streaming event reader.
+
+use std::collections::{BTreeMap, HashSet};
+use std::f64::consts::PI;
+use std::fmt;
+use std::fs::File;
+use std::io::{self, BufReader, Cursor, Read};
+use std::path::Path;
+
+use flate2::read::MultiGzDecoder;
+use quarry_event::{Event, FatJet, Flavour, Jet, Lepton, Met, Truth};
+use quarry_lorentz::FourMomentum;
+
+use crate::{BadEvent, BadReason, CsvError, FieldError};
+
+/// The display name used for `-` as an input.
+pub const STDIN_NAME: &str = "<stdin>";
+
+/// Largest |η| accepted for an object. Far outside any detector (trackers
+/// reach |η| ≈ 2.5–4, forward calorimeters ≈ 5; common practice), but
+/// `sinh(η)` stays well within `f64`, so truth-level objects still pass while
+/// garbage such as a value in degrees is caught.
+pub const MAX_ABS_ETA: f64 = 20.0;
+
+/// Largest |φ| accepted [rad]: inputs may use (−π, π] or [0, 2π); anything
+/// beyond 2π is most likely in degrees.
+pub const MAX_ABS_PHI: f64 = 2.0 * PI;
+
+/// Default limit on rows (objects, including the met row) in one event.
+pub const DEFAULT_MAX_OBJECTS: usize = 1000;
+
+/// Relative shortfall of `energy` below `|p|` tolerated as rounding in the
+/// input text; such an object is read as massless (E = |p|).
+pub const ENERGY_ROUNDING_TOLERANCE: f64 = 1e-6;
+
+/// What the reader does after a bad event.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum ErrorPolicy {
+    /// Yield the first bad event, then end iteration.
+    #[default]
+    Stop,
+    /// Yield every bad event and go on; the [`ReadSummary`] counts them by
+    /// reason.
+    Skip,
+}
+
+/// Reader settings.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct ReadOptions {
+    /// What to do after a bad event.
+    pub policy: ErrorPolicy,
+    /// An event with more rows than this becomes a [`BadEvent`] with reason
+    /// [`BadReason::TooManyObjects`]; bounds the memory one event can take.
+    pub max_objects_per_event: usize,
+}
+
+impl Default for ReadOptions {
+    /// [`ErrorPolicy::Stop`], [`DEFAULT_MAX_OBJECTS`].
+    fn default() -> Self {
+        ReadOptions {
+            policy: ErrorPolicy::Stop,
+            max_objects_per_event: DEFAULT_MAX_OBJECTS,
+        }
+    }
+}
+
+impl ReadOptions {
+    /// The same options with another policy.
+    ///
+    /// ```
+    /// use quarry_csv::{ErrorPolicy, ReadOptions};
+    /// assert_eq!(ReadOptions::default().with_policy(ErrorPolicy::Skip).policy, ErrorPolicy::Skip);
+    /// ```
+    pub fn with_policy(mut self, policy: ErrorPolicy) -> Self {
+        self.policy = policy;
+        self
+    }
+}
+
+/// One event from the input: accepted, or rejected with its error.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Record {
+    /// A valid event.
+    Good(Event),
+    /// An event the reader rejected.
+    Bad(BadEvent),
+}
+
+impl Record {
+    /// The event id, if it parsed.
+    ///
+    /// ```
+    /// let r = quarry_csv::Record::Good(quarry_event::Event::new(9));
+    /// assert_eq!(r.id(), Some(9));
+    /// ```
+    pub fn id(&self) -> Option<u64> {
+        match self {
+            Record::Good(e) => Some(e.id),
+            Record::Bad(b) => b.id,
+        }
+    }
+
+    /// The good event, if it is one.
+    ///
+    /// ```
+    /// let r = quarry_csv::Record::Good(quarry_event::Event::new(9));
+    /// assert!(r.good().is_some());
+    /// ```
+    pub fn good(self) -> Option<Event> {
+        match self {
+            Record::Good(e) => Some(e),
+            Record::Bad(_) => None,
+        }
+    }
+}
+
+/// Counts kept while reading.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct ReadSummary {
+    /// Events (contiguous row blocks) yielded so far.
+    pub events: u64,
+    /// Good events among them.
+    pub good: u64,
+    /// Bad events among them.
+    pub bad: u64,
+    /// Bad events by reason.
+    pub bad_by_reason: BTreeMap<BadReason, u64>,
+    /// Rows read (excluding the header and comment lines).
+    pub rows: u64,
+    /// True if [`ErrorPolicy::Stop`] ended reading at a bad event.
+    pub stopped_at_bad_event: bool,
+    /// The fatal stream error's message, if one ended reading.
+    pub fatal: Option<String>,
+}
+
+impl fmt::Display for ReadSummary {
+    /// One line, e.g. `1000 events read: 998 good, 2 bad (not-finite: 1, split-event: 1)`.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(
+            f,
+            "{} events read: {} good, {} bad",
+            self.events, self.good, self.bad
+        )?;
+        if !self.bad_by_reason.is_empty() {
+            let parts: Vec<String> = self
+                .bad_by_reason
+                .iter()
+                .map(|(r, n)| format!("{r}: {n}"))
+                .collect();
+            write!(f, " ({})", parts.join(", "))?;
+        }
+        if self.stopped_at_bad_event {
+            f.write_str("; stopped at the first bad event")?;
+        }
+        if let Some(fatal) = &self.fatal {
+            write!(f, "; reading ended by error: {fatal}")?;
+        }
+        Ok(())
+    }
+}
+
+/// Column positions found in the header.
+#[derive(Clone, Debug)]
+struct Columns {
+    event: usize,
+    kind: usize,
+    pt: usize,
+    eta: usize,
+    phi: usize,
+    mass: Option<usize>,
+    energy: Option<usize>,
+    btag: Option<usize>,
+    charge: Option<usize>,
+    truth: Option<usize>,
+    weight: Option<usize>,
+    cov: Option<[usize; 3]>,
+    /// Header names, by position.
+    names: Vec<String>,
+}
+
+const KNOWN_COLUMNS: [&str; 14] = [
+    "event",
+    "kind",
+    "pt",
+    "eta",
+    "phi",
+    "mass",
+    "energy",
+    "btag",
+    "charge",
+    "truth",
+    "weight",
+    "met_cov_xx",
+    "met_cov_xy",
+    "met_cov_yy",
+];
+
+/// How rows are grouped into events: by parsed id, or by the raw text when
+/// it does not parse (so a run of rows with the same bad id is one bad event).
+#[derive(Clone, Debug, PartialEq, Eq)]
+enum Key {
+    Id(u64),
+    Raw(Vec<u8>),
+}
+
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Kind {
+    Jet,
+    FatJet,
+    Electron,
+    Muon,
+    Met,
+}
+
+/// The event being assembled from its contiguous rows.
+struct Block {
+    key: Key,
+    raw_id: String,
+    first_line: u64,
+    rows: u64,
+    event: Event,
+    error: Option<FieldError>,
+    met_line: Option<u64>,
+    weight: Option<(f64, u64)>,
+}
+
+/// Streaming reader of quarry long-form CSV events.
+///
+/// Iterating yields `Ok(Record)` for every contiguous block of rows that share
+/// an `event` id — [`Record::Good`] or [`Record::Bad`] — and at most one
+/// `Err(CsvError)` for a broken stream, after which it yields `None`. Memory
+/// stays bounded by one row plus one event (at most
+/// [`ReadOptions::max_objects_per_event`] objects), plus 8 bytes per event id
+/// seen: the reader keeps a set of ids to reject an id that reappears later.
+///
+/// ```
+/// use quarry_csv::{EventReader, ReadOptions, Record};
+/// let text = "event,kind,pt,eta,phi,mass,btag\n\
+///             1,jet,50,0.1,0.2,5,0.9\n\
+///             1,met,30,,1.5,,\n\
+///             2,jet,40,abc,0.2,5,0.1\n";
+/// let opts = ReadOptions::default().with_policy(quarry_csv::ErrorPolicy::Skip);
+/// let reader = EventReader::from_reader(text.as_bytes(), "events.csv", opts).unwrap();
+/// let records: Vec<Record> = reader.map(Result::unwrap).collect();
+/// assert!(matches!(&records[0], Record::Good(e) if e.jets.len() == 1));
+/// match &records[1] {
+///     Record::Bad(bad) => assert_eq!(bad.error.to_string(),
+///         "events.csv:4: column 'eta': 'abc' is not a number"),
+///     Record::Good(_) => unreachable!(),
+/// }
+/// ```
+pub struct EventReader {
+    csv: csv::Reader<Box<dyn Read + Send>>,
+    name: String,
+    gz: bool,
+    cols: Columns,
+    options: ReadOptions,
+    row: csv::ByteRecord,
+    current: Option<Block>,
+    seen: HashSet<u64>,
+    summary: ReadSummary,
+    warnings: Vec<String>,
+    fatal: Option<CsvError>,
+    done: bool,
+}
+
+impl EventReader {
+    /// Opens a file (`-` reads stdin). Gzip input is recognised by its magic
+    /// bytes, whatever the name; a `.gz` name on plain text is read as plain
+    /// text with a warning. Reads and checks the header.
+    pub fn open(path: &Path, options: ReadOptions) -> Result<EventReader, CsvError> {
+        if path.as_os_str() == "-" {
+            return EventReader::from_reader(io::stdin(), STDIN_NAME, options);
+        }
+        let name = path.display().to_string();
+        let file = File::open(path).map_err(|source| CsvError::Open {
+            file: name.clone(),
+            source,
+        })?;
+        let mut reader = EventReader::from_reader(file, &name, options)?;
+        if !reader.gz && path.extension().is_some_and(|e| e == "gz") {
+            reader.warnings.push(format!(
+                "{name}: named .gz but not gzip data; read as plain text"
+            ));
+        }
+        Ok(reader)
+    }
+
+    /// Reads from any byte source; `name` is used in messages. Gzip is
+    /// recognised by its magic bytes.
+    pub fn from_reader<R: Read + Send + 'static>(
+        reader: R,
+        name: &str,
+        options: ReadOptions,
+    ) -> Result<EventReader, CsvError> {
+        let (input, gz) = sniff_gzip(Box::new(reader), name)?;
+        let mut csv = csv::ReaderBuilder::new()
+            .has_headers(false)
+            .flexible(true)
+            .trim(csv::Trim::All)
+            .comment(Some(b'#'))
+            .from_reader(input);
+        let mut header = csv::ByteRecord::new();
+        let name = name.to_string();
+        match csv.read_byte_record(&mut header) {
+            Ok(true) => {}
+            Ok(false) => return Err(CsvError::Empty { file: name }),
+            Err(e) => return Err(read_error(&name, gz, csv.position().line(), e)),
+        }
+        let line = header.position().map_or(1, |p| p.line());
+        let (cols, unknown) = parse_header(&header).map_err(|message| CsvError::Header {
+            file: name.clone(),
+            line,
+            message,
+        })?;
+        let mut warnings = Vec::new();
+        if !unknown.is_empty() {
+            warnings.push(format!(
+                "{name}:{line}: ignoring unknown column(s) {}",
+                unknown
+                    .iter()
+                    .map(|c| format!("'{c}'"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        }
+        Ok(EventReader {
+            csv,
+            name,
+            gz,
+            cols,
+            options,
+            row: csv::ByteRecord::new(),
+            current: None,
+            seen: HashSet::new(),
+            summary: ReadSummary::default(),
+            warnings,
+            fatal: None,
+            done: false,
+        })
+    }
+
+    /// The input's name as used in messages.
+    pub fn name(&self) -> &str {
+        &self.name
+    }
+
+    /// Whether the input is gzip-compressed.
+    pub fn is_gzip(&self) -> bool {
+        self.gz
+    }
+
+    /// Warnings collected so far (unknown columns, header-only file, a `.gz`
+    /// name on plain text). Each is reported once.
+    pub fn warnings(&self) -> &[String] {
+        &self.warnings
+    }
+
+    /// Counts so far; final once iteration has returned `None`.
+    pub fn summary(&self) -> &ReadSummary {
+        &self.summary
+    }
+
+    /// Turns a finished block into its record and counts it.
+    fn finish(&mut self, block: Block) -> Record {
+        self.summary.events += 1;
+        match block.error {
+            None => {
+                self.summary.good += 1;
+                let mut event = block.event;
+                event.weight = block.weight.map_or(1.0, |(w, _)| w);
+                Record::Good(event)
+            }
+            Some(error) => {
+                self.summary.bad += 1;
+                *self.summary.bad_by_reason.entry(error.reason).or_insert(0) += 1;
+                if self.options.policy == ErrorPolicy::Stop {
+                    self.summary.stopped_at_bad_event = true;
+                    self.done = true;
+                }
+                Record::Bad(BadEvent {
+                    id: match block.key {
+                        Key::Id(id) => Some(id),
+                        Key::Raw(_) => None,
+                    },
+                    raw_id: block.raw_id,
+                    first_line: block.first_line,
+                    rows: block.rows,
+                    error,
+                })
+            }
+        }
+    }
+
+    fn start_block(&mut self, key: Key, line: u64) -> Block {
+        let raw_id = self
+            .row
+            .get(self.cols.event)
+            .map(|b| String::from_utf8_lossy(b).into_owned())
+            .unwrap_or_default();
+        let mut error = None;
+        match &key {
+            Key::Id(id) => {
+                if !self.seen.insert(*id) {
+                    error = Some(self.error(
+                        line,
+                        Some(self.cols.event),
+                        Some(raw_id.clone()),
+                        BadReason::SplitEvent,
+                        "appeared earlier in the file: rows of one event must be contiguous".into(),
+                    ));
+                }
+            }
+            Key::Raw(raw) => {
+                let (value, message) = if raw.is_empty() {
+                    (None, "is empty (expected an unsigned integer event id)")
+                } else {
+                    (Some(raw_id.clone()), "is not an unsigned integer event id")
+                };
+                error = Some(self.error(
+                    line,
+                    Some(self.cols.event),
+                    value,
+                    BadReason::BadEventId,
+                    message.into(),
+                ));
+            }
+        }
+        Block {
+            event: Event::new(match key {
+                Key::Id(id) => id,
+                Key::Raw(_) => 0,
+            }),
+            key,
+            raw_id,
+            first_line: line,
+            rows: 0,
+            error,
+            met_line: None,
+            weight: None,
+        }
+    }
+
+    fn error(
+        &self,
+        line: u64,
+        column: Option<usize>,
+        value: Option<String>,
+        reason: BadReason,
+        message: String,
+    ) -> FieldError {
+        FieldError {
+            file: self.name.clone(),
+            line,
+            column: column.map(|c| self.cols.names[c].clone()),
+            value,
+            reason,
+            message,
+        }
+    }
+
+    fn key_of_row(&self) -> Key {
+        match self.row.get(self.cols.event) {
+            None => Key::Raw(Vec::new()),
+            Some(b) => match std::str::from_utf8(b)
+                .ok()
+                .and_then(|s| s.parse::<u64>().ok())
+            {
+                Some(id) => Key::Id(id),
+                None => Key::Raw(b.to_vec()),
+            },
+        }
+    }
+}
+
+impl Iterator for EventReader {
+    type Item = Result<Record, CsvError>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        loop {
+            if self.done {
+                return self.fatal.take().map(Err);
+            }
+            match self.csv.read_byte_record(&mut self.row) {
+                Ok(true) => {
+                    self.summary.rows += 1;
+                    let line = self.row.position().map_or(0, |p| p.line());
+                    let key = self.key_of_row();
+                    let same = self.current.as_ref().is_some_and(|b| b.key == key);
+                    let finished = if same { None } else { self.current.take() };
+                    if !same {
+                        let block = self.start_block(key, line);
+                        self.current = Some(block);
+                    }
+                    let mut block = self.current.take().expect("a block is open");
+                    add_row(
+                        &self.cols,
+                        &self.name,
+                        &self.options,
+                        &self.row,
+                        line,
+                        &mut block,
+                    );
+                    self.current = Some(block);
+                    if let Some(b) = finished {
+                        return Some(Ok(self.finish(b)));
+                    }
+                }
+                Ok(false) => {
+                    self.done = true;
+                    if let Some(b) = self.current.take() {
+                        return Some(Ok(self.finish(b)));
+                    }
+                    if self.summary.events == 0 {
+                        self.warnings
+                            .push(format!("{}: no events (header only)", self.name));
+                    }
+                    return None;
+                }
+                Err(e) => {
+                    let line = self.csv.position().line();
+                    let fatal = read_error(&self.name, self.gz, line, e);
+                    self.summary.fatal = Some(fatal.to_string());
+                    self.fatal = Some(fatal);
+                    self.done = true;
+                    if let Some(mut b) = self.current.take() {
+                        // The rows read so far may be incomplete: never pass
+                        // them on as a good event.
+                        if b.error.is_none() {
+                            b.error = Some(FieldError {
+                                file: self.name.clone(),
+                                line,
+                                column: None,
+                                value: None,
+                                reason: BadReason::Truncated,
+                                message: "the input broke off while this event was being read"
+                                    .into(),
+                            });
+                        }
+                        return Some(Ok(self.finish(b)));
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// Checks the header: required columns present once, cov columns all or
+/// none. Returns the columns and the unknown names.
+fn parse_header(header: &csv::ByteRecord) -> Result<(Columns, Vec<String>), String> {
+    let mut names = Vec::with_capacity(header.len());
+    for (i, raw) in header.iter().enumerate() {
+        let mut name = std::str::from_utf8(raw)
+            .map_err(|_| format!("column {} name is not valid UTF-8", i + 1))?;
+        if i == 0 {
+            name = name.trim_start_matches('\u{feff}');
+        }
+        names.push(name.to_string());
+    }
+    let find = |want: &str| -> Result<Option<usize>, String> {
+        let mut hits = names.iter().enumerate().filter(|(_, n)| *n == want);
+        let first = hits.next().map(|(i, _)| i);
+        if let Some((j, _)) = hits.next() {
+            return Err(format!(
+                "column '{want}' appears twice (columns {} and {})",
+                first.unwrap_or(0) + 1,
+                j + 1
+            ));
+        }
+        Ok(first)
+    };
+    let required = |want: &str| -> Result<usize, String> {
+        find(want)?.ok_or_else(|| {
+            format!(
+                "missing required column '{want}' (required: event, kind, pt, eta, phi, and mass or energy)"
+            )
+        })
+    };
+    let event = required("event")?;
+    let kind = required("kind")?;
+    let pt = required("pt")?;
+    let eta = required("eta")?;
+    let phi = required("phi")?;
+    let mass = find("mass")?;
+    let energy = find("energy")?;
+    if mass.is_none() && energy.is_none() {
+        return Err("missing column 'mass' or 'energy' (at least one is required)".into());
+    }
+    let cov_cols = [
+        find("met_cov_xx")?,
+        find("met_cov_xy")?,
+        find("met_cov_yy")?,
+    ];
+    let cov = match cov_cols {
+        [Some(a), Some(b), Some(c)] => Some([a, b, c]),
+        [None, None, None] => None,
+        _ => {
+            return Err(
+                "MET covariance needs all three columns met_cov_xx, met_cov_xy, met_cov_yy".into(),
+            )
+        }
+    };
+    let cols = Columns {
+        event,
+        kind,
+        pt,
+        eta,
+        phi,
+        mass,
+        energy,
+        btag: find("btag")?,
+        charge: find("charge")?,
+        truth: find("truth")?,
+        weight: find("weight")?,
+        cov,
+        names: names.clone(),
+    };
+    let unknown = names
+        .into_iter()
+        .filter(|n| !KNOWN_COLUMNS.contains(&n.as_str()))
+        .collect();
+    Ok((cols, unknown))
+}
+
+/// Parses one row into the block, recording the first error found. Rows of
+/// a block that already has an error are only counted.
+fn add_row(
+    cols: &Columns,
+    name: &str,
+    options: &ReadOptions,
+    row: &csv::ByteRecord,
+    line: u64,
+    block: &mut Block,
+) {
+    block.rows += 1;
+    if block.error.is_some() {
+        return;
+    }
+    let ctx = RowCtx {
+        cols,
+        name,
+        row,
+        line,
+    };
+    if let Err(e) = parse_row(&ctx, options, block) {
+        block.error = Some(e);
+    }
+}
+
+struct RowCtx<'a> {
+    cols: &'a Columns,
+    name: &'a str,
+    row: &'a csv::ByteRecord,
+    line: u64,
+}
+
+impl RowCtx<'_> {
+    fn err(&self, col: usize, value: &str, reason: BadReason, message: &str) -> FieldError {
+        FieldError {
+            file: self.name.to_string(),
+            line: self.line,
+            column: Some(self.cols.names[col].clone()),
+            value: if value.is_empty() {
+                None
+            } else {
+                Some(value.to_string())
+            },
+            reason,
+            message: message.to_string(),
+        }
+    }
+
+    fn row_err(&self, reason: BadReason, message: String) -> FieldError {
+        FieldError {
+            file: self.name.to_string(),
+            line: self.line,
+            column: None,
+            value: None,
+            reason,
+            message,
+        }
+    }
+
+    /// The field's text ("" when the column is absent from the header).
+    fn text(&self, col: Option<usize>) -> Result<&str, FieldError> {
+        let Some(c) = col else { return Ok("") };
+        let bytes = self.row.get(c).unwrap_or(b"");
+        std::str::from_utf8(bytes).map_err(|_| {
+            self.err(
+                c,
+                &String::from_utf8_lossy(bytes),
+                BadReason::BadUtf8,
+                "is not valid UTF-8",
+            )
+        })
+    }
+
+    /// An optional finite number: `None` when empty or the column is absent.
+    fn number(&self, col: Option<usize>) -> Result<Option<f64>, FieldError> {
+        let text = self.text(col)?;
+        if text.is_empty() {
+            return Ok(None);
+        }
+        let c = col.expect("non-empty text has a column");
+        match text.parse::<f64>() {
+            Err(_) => Err(self.err(c, text, BadReason::NotANumber, "is not a number")),
+            Ok(x) if !x.is_finite() => {
+                Err(self.err(c, text, BadReason::NotFinite, "is not a finite number"))
+            }
+            Ok(x) => Ok(Some(x)),
+        }
+    }
+
+    /// A required finite number.
+    fn required(&self, col: usize, what: &str) -> Result<f64, FieldError> {
+        self.number(Some(col))?.ok_or_else(|| {
+            self.err(
+                col,
+                "",
+                BadReason::MissingValue,
+                &format!("is empty (expected {what})"),
+            )
+        })
+    }
+
+    fn at_least_zero(&self, col: usize, x: f64, text_unit: &str) -> Result<f64, FieldError> {
+        if x < 0.0 {
+            Err(self.err(
+                col,
+                &format_value(x),
+                BadReason::OutOfRange,
+                &format!("is negative (expected {text_unit} ≥ 0)"),
+            ))
+        } else {
+            Ok(x)
+        }
+    }
+}
+
+fn format_value(x: f64) -> String {
+    crate::format_f64(x)
+}
+
+fn parse_row(ctx: &RowCtx<'_>, options: &ReadOptions, block: &mut Block) -> Result<(), FieldError> {
+    let cols = ctx.cols;
+    if ctx.row.len() != cols.names.len() {
+        return Err(ctx.row_err(
+            BadReason::FieldCount,
+            format!(
+                "row has {} fields, the header has {}",
+                ctx.row.len(),
+                cols.names.len()
+            ),
+        ));
+    }
+    if block.rows > options.max_objects_per_event as u64 {
+        return Err(ctx.row_err(
+            BadReason::TooManyObjects,
+            format!(
+                "event has more than {} rows (the max_objects_per_event limit)",
+                options.max_objects_per_event
+            ),
+        ));
+    }
+    let kind_text = ctx.text(Some(cols.kind))?;
+    let kind = match kind_text {
+        "jet" => Kind::Jet,
+        "fatjet" => Kind::FatJet,
+        "electron" => Kind::Electron,
+        "muon" => Kind::Muon,
+        "met" => Kind::Met,
+        "" => {
+            return Err(ctx.err(
+                cols.kind,
+                "",
+                BadReason::MissingValue,
+                "is empty (expected jet, fatjet, electron, muon or met)",
+            ))
+        }
+        other => {
+            return Err(ctx.err(
+                cols.kind,
+                other,
+                BadReason::UnknownKind,
+                "is not a known kind (expected jet, fatjet, electron, muon or met)",
+            ))
+        }
+    };
+    if let Some(w) = ctx.number(cols.weight)? {
+        match block.weight {
+            None => block.weight = Some((w, ctx.line)),
+            Some((first, first_line)) if first != w => {
+                return Err(ctx.err(
+                    cols.weight.expect("weight parsed"),
+                    &format_value(w),
+                    BadReason::InconsistentWeight,
+                    &format!(
+                        "differs from this event's weight {} on line {first_line} (weight must be equal on all rows that give it)",
+                        format_value(first)
+                    ),
+                ));
+            }
+            Some(_) => {}
+        }
+    }
+    let pt = ctx.required(cols.pt, "pt in GeV")?;
+    let pt = ctx.at_least_zero(cols.pt, pt, "pt")?;
+    let phi = ctx.required(cols.phi, "phi in radians")?;
+    if phi.abs() > MAX_ABS_PHI {
+        return Err(ctx.err(
+            cols.phi,
+            &format_value(phi),
+            BadReason::OutOfRange,
+            "is outside [-2π, 2π] (phi is in radians)",
+        ));
+    }
+    if kind == Kind::Met {
+        if let Some(first) = block.met_line {
+            return Err(ctx.row_err(
+                BadReason::DuplicateMet,
+                format!("second met row in this event (the first is on line {first})"),
+            ));
+        }
+        block.met_line = Some(ctx.line);
+        // eta, mass, energy do not apply to MET: ignored, but a non-empty
+        // value must still be a number, so that garbage is not hidden.
+        ctx.number(Some(cols.eta))?;
+        ctx.number(cols.mass)?;
+        ctx.number(cols.energy)?;
+        let cov = match cols.cov {
+            None => None,
+            Some([ixx, ixy, iyy]) => {
+                match (
+                    ctx.number(Some(ixx))?,
+                    ctx.number(Some(ixy))?,
+                    ctx.number(Some(iyy))?,
+                ) {
+                    (None, None, None) => None,
+                    (Some(xx), Some(xy), Some(yy)) => {
+                        // Positive semi-definite 2×2: non-negative diagonal
+                        // and determinant, the latter up to rounding.
+                        if xx < 0.0 || yy < 0.0 || xy * xy > xx * yy * (1.0 + 1e-9) {
+                            return Err(ctx.row_err(
+                                BadReason::BadCovariance,
+                                format!(
+                                    "MET covariance [xx={}, xy={}, yy={}] is not positive semi-definite (need xx ≥ 0, yy ≥ 0, xy² ≤ xx·yy)",
+                                    format_value(xx), format_value(xy), format_value(yy)
+                                ),
+                            ));
+                        }
+                        Some([xx, xy, yy])
+                    }
+                    _ => return Err(ctx.row_err(
+                        BadReason::BadCovariance,
+                        "MET covariance needs all of met_cov_xx, met_cov_xy, met_cov_yy, or none"
+                            .into(),
+                    )),
+                }
+            }
+        };
+        let (s, c) = phi.sin_cos();
+        block.event.met = Met {
+            px: pt * c,
+            py: pt * s,
+            cov,
+        };
+        return Ok(());
+    }
+    let eta = ctx.required(cols.eta, "eta")?;
+    if eta.abs() > MAX_ABS_ETA {
+        return Err(ctx.err(
+            cols.eta,
+            &format_value(eta),
+            BadReason::OutOfRange,
+            &format!("is outside [-{MAX_ABS_ETA}, {MAX_ABS_ETA}]"),
+        ));
+    }
+    let p4 = if let Some(m) = ctx.number(cols.mass)? {
+        // mass wins when both mass and energy are given; energy is then
+        // only checked to be a number.
+        ctx.number(cols.energy)?;
+        let m = ctx.at_least_zero(cols.mass.expect("mass parsed"), m, "mass")?;
+        FourMomentum::from_pt_eta_phi_m(pt, eta, phi, m)
+    } else if let Some(e) = ctx.number(cols.energy)? {
+        let ie = cols.energy.expect("energy parsed");
+        let e = ctx.at_least_zero(ie, e, "energy")?;
+        let p = pt * eta.cosh();
+        let e = if e >= p {
+            e
+        } else if e >= p * (1.0 - ENERGY_ROUNDING_TOLERANCE) {
+            p
+        } else {
+            return Err(ctx.err(
+                ie,
+                &format_value(e),
+                BadReason::OutOfRange,
+                &format!(
+                    "is below the momentum |p| = {} GeV (energy must be ≥ |p|)",
+                    format_value(p)
+                ),
+            ));
+        };
+        FourMomentum::from_pt_eta_phi_e(pt, eta, phi, e)
+    } else {
+        return Err(ctx.row_err(
+            BadReason::MissingValue,
+            format!("{kind_text} row needs a value in 'mass' or 'energy'"),
+        ));
+    };
+    let truth = {
+        let text = ctx.text(cols.truth)?;
+        if text.is_empty() {
+            None
+        } else {
+            Some(Truth::new(text).ok_or_else(|| {
+                ctx.err(
+                    cols.truth.expect("truth parsed"),
+                    text,
+                    BadReason::BadTruth,
+                    "is not a truth label (1–23 printable ASCII characters, no commas or spaces)",
+                )
+            })?)
+        }
+    };
+    let event = &mut block.event;
+    match kind {
+        Kind::Jet => {
+            let btag = match ctx.number(cols.btag)? {
+                None => 0.0,
+                Some(b) if (0.0..=1.0).contains(&b) => b,
+                Some(b) => {
+                    return Err(ctx.err(
+                        cols.btag.expect("btag parsed"),
+                        &format_value(b),
+                        BadReason::OutOfRange,
+                        "is outside [0, 1] (expected a b-tag score or 0/1)",
+                    ))
+                }
+            };
+            let index = event.jets.len() as u32;
+            event.jets.push(Jet {
+                p4,
+                btag,
+                truth,
+                index,
+            });
+        }
+        Kind::FatJet => {
+            let index = event.fat_jets.len() as u32;
+            event.fat_jets.push(FatJet { p4, truth, index });
+        }
+        Kind::Electron | Kind::Muon => {
+            let charge = match ctx.number(cols.charge)? {
+                None => 0,
+                Some(c) if c.to_bits() == 1.0f64.to_bits() => 1,
+                Some(c) if c.to_bits() == (-1.0f64).to_bits() => -1,
+                Some(c) => {
+                    return Err(ctx.err(
+                        cols.charge.expect("charge parsed"),
+                        &format_value(c),
+                        BadReason::OutOfRange,
+                        "is not a charge of -1 or +1",
+                    ))
+                }
+            };
+            let (list, flavour) = if kind == Kind::Electron {
+                (&mut event.electrons, Flavour::Electron)
+            } else {
+                (&mut event.muons, Flavour::Muon)
+            };
+            let index = list.len() as u32;
+            list.push(Lepton {
+                p4,
+                flavour,
+                charge,
+                truth,
+                index,
+            });
+        }
+        Kind::Met => unreachable!("handled above"),
+    }
+    Ok(())
+}
+
+/// Peeks at the first two bytes; wraps the stream in a gzip decoder when
+/// they are the gzip magic bytes.
+fn sniff_gzip(
+    mut input: Box<dyn Read + Send>,
+    name: &str,
+) -> Result<(Box<dyn Read + Send>, bool), CsvError> {
+    let mut magic = [0u8; 2];
+    let mut n = 0;
+    while n < 2 {
+        match input.read(&mut magic[n..]) {
+            Ok(0) => break,
+            Ok(k) => n += k,
+            Err(e) if e.kind() == io::ErrorKind::Interrupted => {}
+            Err(source) => {
+                return Err(CsvError::Read {
+                    file: name.to_string(),
+                    line: 1,
+                    hint: "",
+                    source,
+                })
+            }
+        }
+    }
+    let head = Cursor::new(magic[..n].to_vec()).chain(input);
+    if n == 2 && magic == [0x1f, 0x8b] {
+        Ok((Box::new(MultiGzDecoder::new(BufReader::new(head))), true))
+    } else {
+        Ok((Box::new(head), false))
+    }
+}
+
+fn read_error(name: &str, gz: bool, line: u64, e: csv::Error) -> CsvError {
+    let source = match e.into_kind() {
+        csv::ErrorKind::Io(io) => io,
+        other => io::Error::other(format!("{other:?}")),
+    };
+    CsvError::Read {
+        file: name.to_string(),
+        line,
+        hint: if gz {
+            " (truncated or corrupt gzip stream)"
+        } else {
+            ""
+        },
+        source,
+    }
+}
