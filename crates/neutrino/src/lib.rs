@@ -531,7 +531,7 @@ fn nearest_on_boundary(
         } else {
             (2.0 * lo).max(1.0)
         };
-        if next == t || hi - lo <= f64::EPSILON * hi {
+        if next == t || (hi.is_finite() && hi - lo <= f64::EPSILON * hi) {
             break;
         }
         t = next;
