@@ -60,6 +60,10 @@ pub mod branching {
     pub const Z_TO_INVISIBLE: f64 = 0.2000;
     /// Z → hadrons.
     pub const Z_TO_HADRONS: f64 = 0.6991;
+    /// Z → b b̄ (PDG 2024, Γ(b b̄)/Γ = 15.12 %); a part of
+    /// [`Z_TO_HADRONS`]. Used by the toy generator to give hadronic Z decays
+    /// their b-quark share.
+    pub const Z_TO_BB: f64 = 0.1512;
     /// H → b b̄ (SM prediction at m_H = 125 GeV, LHC Higgs working group
     /// value as quoted by the PDG; from memory).
     pub const H_TO_BB: f64 = 0.582;
