@@ -101,6 +101,9 @@ pub enum BadReason {
     FieldCount,
     /// The stream broke while this event was being read.
     Truncated,
+    /// A line is not valid CSV (unterminated quote, text after a closing
+    /// quote) or is longer than the line limit.
+    Syntax,
 }
 
 impl BadReason {
@@ -126,6 +129,7 @@ impl BadReason {
             BadReason::BadUtf8 => "bad-utf8",
             BadReason::FieldCount => "field-count",
             BadReason::Truncated => "truncated",
+            BadReason::Syntax => "syntax",
         }
     }
 }

@@ -4,7 +4,7 @@ use std::collections::{BTreeMap, HashSet};
 use std::f64::consts::PI;
 use std::fmt;
 use std::fs::File;
-use std::io::{self, BufReader, Cursor, Read};
+use std::io::{self, BufRead, BufReader, Cursor, Read};
 use std::path::Path;
 
 use flate2::read::MultiGzDecoder;
@@ -250,12 +250,12 @@ struct Block {
 /// }
 /// ```
 pub struct EventReader {
-    csv: csv::Reader<Box<dyn Read + Send>>,
+    lines: Lines,
     name: String,
     gz: bool,
     cols: Columns,
     options: ReadOptions,
-    row: csv::ByteRecord,
+    row: Row,
     current: Option<Block>,
     seen: HashSet<u64>,
     summary: ReadSummary,
@@ -294,20 +294,38 @@ impl EventReader {
         options: ReadOptions,
     ) -> Result<EventReader, CsvError> {
         let (input, gz) = sniff_gzip(Box::new(reader), name)?;
-        let mut csv = csv::ReaderBuilder::new()
-            .has_headers(false)
-            .flexible(true)
-            .trim(csv::Trim::All)
-            .comment(Some(b'#'))
-            .from_reader(input);
-        let mut header = csv::ByteRecord::new();
+        let mut lines = Lines {
+            input: BufReader::new(input),
+            buf: Vec::new(),
+            line_no: 0,
+        };
         let name = name.to_string();
-        match csv.read_byte_record(&mut header) {
-            Ok(true) => {}
-            Ok(false) => return Err(CsvError::Empty { file: name }),
-            Err(e) => return Err(read_error(&name, gz, csv.position().line(), e)),
-        }
-        let line = header.position().map_or(1, |p| p.line());
+        let mut header = Row::default();
+        let line = loop {
+            match lines.next_line() {
+                Ok(None) => return Err(CsvError::Empty { file: name }),
+                Ok(Some(false)) => {}
+                Ok(Some(true)) => {
+                    return Err(CsvError::Header {
+                        file: name,
+                        line: lines.line_no,
+                        message: format!("line longer than {MAX_LINE_BYTES} bytes"),
+                    })
+                }
+                Err(source) => return Err(read_error(&name, gz, lines.line_no + 1, source)),
+            }
+            if is_blank_or_comment(&lines.buf) {
+                continue;
+            }
+            if let Err(message) = header.split(&lines.buf) {
+                return Err(CsvError::Header {
+                    file: name,
+                    line: lines.line_no,
+                    message: message.to_string(),
+                });
+            }
+            break lines.line_no;
+        };
         let (cols, unknown) = parse_header(&header).map_err(|message| CsvError::Header {
             file: name.clone(),
             line,
@@ -325,12 +343,12 @@ impl EventReader {
             ));
         }
         Ok(EventReader {
-            csv,
+            lines,
             name,
             gz,
             cols,
             options,
-            row: csv::ByteRecord::new(),
+            row: Row::default(),
             current: None,
             seen: HashSet::new(),
             summary: ReadSummary::default(),
@@ -481,32 +499,9 @@ impl Iterator for EventReader {
             if self.done {
                 return self.fatal.take().map(Err);
             }
-            match self.csv.read_byte_record(&mut self.row) {
-                Ok(true) => {
-                    self.summary.rows += 1;
-                    let line = self.row.position().map_or(0, |p| p.line());
-                    let key = self.key_of_row();
-                    let same = self.current.as_ref().is_some_and(|b| b.key == key);
-                    let finished = if same { None } else { self.current.take() };
-                    if !same {
-                        let block = self.start_block(key, line);
-                        self.current = Some(block);
-                    }
-                    let mut block = self.current.take().expect("a block is open");
-                    add_row(
-                        &self.cols,
-                        &self.name,
-                        &self.options,
-                        &self.row,
-                        line,
-                        &mut block,
-                    );
-                    self.current = Some(block);
-                    if let Some(b) = finished {
-                        return Some(Ok(self.finish(b)));
-                    }
-                }
-                Ok(false) => {
+            let too_long = match self.lines.next_line() {
+                Ok(Some(too_long)) => too_long,
+                Ok(None) => {
                     self.done = true;
                     if let Some(b) = self.current.take() {
                         return Some(Ok(self.finish(b)));
@@ -517,9 +512,9 @@ impl Iterator for EventReader {
                     }
                     return None;
                 }
-                Err(e) => {
-                    let line = self.csv.position().line();
-                    let fatal = read_error(&self.name, self.gz, line, e);
+                Err(source) => {
+                    let line = self.lines.line_no + 1;
+                    let fatal = read_error(&self.name, self.gz, line, source);
                     self.summary.fatal = Some(fatal.to_string());
                     self.fatal = Some(fatal);
                     self.done = true;
@@ -539,7 +534,51 @@ impl Iterator for EventReader {
                         }
                         return Some(Ok(self.finish(b)));
                     }
+                    continue;
                 }
+            };
+            if is_blank_or_comment(&self.lines.buf) {
+                continue;
+            }
+            let line = self.lines.line_no;
+            self.summary.rows += 1;
+            let syntax = self.row.split(&self.lines.buf).err().map(str::to_string);
+            let syntax = if too_long {
+                Some(format!("line longer than {MAX_LINE_BYTES} bytes"))
+            } else {
+                syntax
+            };
+            let key = self.key_of_row();
+            let same = self.current.as_ref().is_some_and(|b| b.key == key);
+            let finished = if same { None } else { self.current.take() };
+            if !same {
+                let block = self.start_block(key, line);
+                self.current = Some(block);
+            }
+            let mut block = self.current.take().expect("a block is open");
+            if let (Some(message), None) = (syntax, &block.error) {
+                block.rows += 1;
+                block.error = Some(FieldError {
+                    file: self.name.clone(),
+                    line,
+                    column: None,
+                    value: None,
+                    reason: BadReason::Syntax,
+                    message,
+                });
+            } else {
+                add_row(
+                    &self.cols,
+                    &self.name,
+                    &self.options,
+                    &self.row,
+                    line,
+                    &mut block,
+                );
+            }
+            self.current = Some(block);
+            if let Some(b) = finished {
+                return Some(Ok(self.finish(b)));
             }
         }
     }
@@ -547,9 +586,9 @@ impl Iterator for EventReader {
 
 /// Checks the header: required columns present once, cov columns all or
 /// none. Returns the columns and the unknown names.
-fn parse_header(header: &csv::ByteRecord) -> Result<(Columns, Vec<String>), String> {
+fn parse_header(header: &Row) -> Result<(Columns, Vec<String>), String> {
     let mut names = Vec::with_capacity(header.len());
-    for (i, raw) in header.iter().enumerate() {
+    for (i, raw) in header.fields().enumerate() {
         let mut name = std::str::from_utf8(raw)
             .map_err(|_| format!("column {} name is not valid UTF-8", i + 1))?;
         if i == 0 {
@@ -628,7 +667,7 @@ fn add_row(
     cols: &Columns,
     name: &str,
     options: &ReadOptions,
-    row: &csv::ByteRecord,
+    row: &Row,
     line: u64,
     block: &mut Block,
 ) {
@@ -650,7 +689,7 @@ fn add_row(
 struct RowCtx<'a> {
     cols: &'a Columns,
     name: &'a str,
-    row: &'a csv::ByteRecord,
+    row: &'a Row,
     line: u64,
 }
 
@@ -1013,11 +1052,7 @@ fn sniff_gzip(
     }
 }
 
-fn read_error(name: &str, gz: bool, line: u64, e: csv::Error) -> CsvError {
-    let source = match e.into_kind() {
-        csv::ErrorKind::Io(io) => io,
-        other => io::Error::other(format!("{other:?}")),
-    };
+fn read_error(name: &str, gz: bool, line: u64, source: io::Error) -> CsvError {
     CsvError::Read {
         file: name.to_string(),
         line,
@@ -1027,5 +1062,150 @@ fn read_error(name: &str, gz: bool, line: u64, e: csv::Error) -> CsvError {
             ""
         },
         source,
+    }
+}
+
+/// Longest line accepted; a longer one becomes a bad event (its rest is
+/// skipped without being stored), so one line cannot take unbounded memory.
+pub const MAX_LINE_BYTES: usize = 1 << 20;
+
+/// Physical lines of the input, counted exactly. quarry reads lines itself
+/// (rather than through the `csv` crate's record reader) so that every error
+/// names the true line number with LF or CRLF ends, blank lines and comment
+/// lines alike; the format has no multi-line fields.
+struct Lines {
+    input: BufReader<Box<dyn Read + Send>>,
+    buf: Vec<u8>,
+    line_no: u64,
+}
+
+impl Lines {
+    /// Reads the next line into `buf` without its line end. `Ok(None)` at
+    /// the end of input; `Ok(Some(true))` if the line was longer than
+    /// [`MAX_LINE_BYTES`] (`buf` then holds its start).
+    fn next_line(&mut self) -> io::Result<Option<bool>> {
+        self.buf.clear();
+        let n = (&mut self.input)
+            .take(MAX_LINE_BYTES as u64 + 1)
+            .read_until(b'\n', &mut self.buf)?;
+        if n == 0 {
+            return Ok(None);
+        }
+        self.line_no += 1;
+        let mut too_long = false;
+        if self.buf.last() == Some(&b'\n') {
+            self.buf.pop();
+        } else if self.buf.len() > MAX_LINE_BYTES {
+            too_long = true;
+            self.buf.truncate(MAX_LINE_BYTES);
+            loop {
+                let avail = self.input.fill_buf()?;
+                if avail.is_empty() {
+                    break;
+                }
+                if let Some(i) = avail.iter().position(|&b| b == b'\n') {
+                    self.input.consume(i + 1);
+                    break;
+                }
+                let len = avail.len();
+                self.input.consume(len);
+            }
+        }
+        if self.buf.last() == Some(&b'\r') {
+            self.buf.pop();
+        }
+        if self.line_no == 1 && self.buf.starts_with(b"\xEF\xBB\xBF") {
+            // A UTF-8 byte-order mark, as some spreadsheet programs write.
+            self.buf.drain(..3);
+        }
+        Ok(Some(too_long))
+    }
+}
+
+fn is_blank_or_comment(line: &[u8]) -> bool {
+    match line.iter().find(|b| !b.is_ascii_whitespace()) {
+        None => true,
+        Some(&b) => b == b'#',
+    }
+}
+
+/// One line split into fields, stored contiguously without per-field
+/// allocation.
+#[derive(Default)]
+struct Row {
+    bytes: Vec<u8>,
+    ends: Vec<usize>,
+}
+
+impl Row {
+    /// Splits a line: fields separated by commas, surrounding spaces and
+    /// tabs trimmed; a field may be double-quoted (`""` inside quotes is one
+    /// quote). On a syntax error the fields read so far are kept.
+    fn split(&mut self, line: &[u8]) -> Result<(), &'static str> {
+        self.bytes.clear();
+        self.ends.clear();
+        let blank = |b: u8| b == b' ' || b == b'\t';
+        let n = line.len();
+        let mut i = 0;
+        loop {
+            while i < n && blank(line[i]) {
+                i += 1;
+            }
+            if i < n && line[i] == b'"' {
+                i += 1;
+                loop {
+                    if i >= n {
+                        return Err("unterminated quoted field");
+                    }
+                    if line[i] == b'"' {
+                        if i + 1 < n && line[i + 1] == b'"' {
+                            self.bytes.push(b'"');
+                            i += 2;
+                        } else {
+                            i += 1;
+                            break;
+                        }
+                    } else {
+                        self.bytes.push(line[i]);
+                        i += 1;
+                    }
+                }
+                while i < n && blank(line[i]) {
+                    i += 1;
+                }
+                if i < n && line[i] != b',' {
+                    return Err("text after the closing quote of a field");
+                }
+            } else {
+                let start = i;
+                while i < n && line[i] != b',' {
+                    i += 1;
+                }
+                let mut end = i;
+                while end > start && blank(line[end - 1]) {
+                    end -= 1;
+                }
+                self.bytes.extend_from_slice(&line[start..end]);
+            }
+            self.ends.push(self.bytes.len());
+            if i >= n {
+                return Ok(());
+            }
+            i += 1;
+        }
+    }
+
+    fn len(&self) -> usize {
+        self.ends.len()
+    }
+
+    fn get(&self, i: usize) -> Option<&[u8]> {
+        let end = *self.ends.get(i)?;
+        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        Some(&self.bytes[start..end])
+    }
+
+    fn fields(&self) -> impl Iterator<Item = &[u8]> {
+        (0..self.len()).filter_map(|i| self.get(i))
     }
 }

@@ -1,0 +1,118 @@
+//! The atomic output machinery shared by both writers.
+
+use std::io::Read;
+
+use quarry_csv::{EventWriter, RowWriter};
+use quarry_event::Event;
+
+#[derive(serde::Serialize)]
+struct Row {
+    event: u64,
+    status: &'static str,
+    m_reco: f64,
+    chi2: Option<f64>,
+}
+
+fn dir_entries(dir: &std::path::Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn row_writer_is_atomic_and_keeps_field_order() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("result.csv");
+    std::fs::write(&path, "old contents\n").unwrap();
+    let mut w = RowWriter::create(&path).unwrap();
+    w.write(&Row {
+        event: 3,
+        status: "ok",
+        m_reco: 0.1 + 0.2,
+        chi2: Some(1.25),
+    })
+    .unwrap();
+    w.write(&Row {
+        event: 4,
+        status: "no-solution",
+        m_reco: f64::NAN,
+        chi2: None,
+    })
+    .unwrap();
+    // Before finish the old file is untouched and a hidden temp file exists.
+    assert_eq!(std::fs::read_to_string(&path).unwrap(), "old contents\n");
+    let entries = dir_entries(dir.path());
+    assert_eq!(entries.len(), 2, "{entries:?}");
+    assert!(
+        entries.iter().any(|e| e.starts_with(".result.csv.tmp-")),
+        "{entries:?}"
+    );
+    w.finish().unwrap();
+    assert_eq!(
+        std::fs::read_to_string(&path).unwrap(),
+        "event,status,m_reco,chi2\n3,ok,0.30000000000000004,1.25\n4,no-solution,NaN,\n"
+    );
+    assert_eq!(dir_entries(dir.path()), vec!["result.csv".to_string()]);
+}
+
+#[test]
+fn dropping_without_finish_removes_the_temp_file() {
+    let dir = tempfile::tempdir().unwrap();
+    {
+        let mut w = RowWriter::create(&dir.path().join("a.csv")).unwrap();
+        w.write(&Row {
+            event: 1,
+            status: "ok",
+            m_reco: 1.0,
+            chi2: None,
+        })
+        .unwrap();
+        let mut e = EventWriter::create(&dir.path().join("b.csv.gz")).unwrap();
+        e.write(&Event::new(1)).unwrap();
+        assert_eq!(dir_entries(dir.path()).len(), 2);
+    }
+    assert!(
+        dir_entries(dir.path()).is_empty(),
+        "{:?}",
+        dir_entries(dir.path())
+    );
+}
+
+#[test]
+fn gz_suffix_gzips() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("rows.csv.gz");
+    let mut w = RowWriter::create(&path).unwrap();
+    w.write(&Row {
+        event: 9,
+        status: "ok",
+        m_reco: 172.5,
+        chi2: Some(0.5),
+    })
+    .unwrap();
+    w.finish().unwrap();
+    let raw = std::fs::read(&path).unwrap();
+    assert_eq!(&raw[..2], &[0x1f, 0x8b], "gzip magic");
+    let mut text = String::new();
+    flate2::read::GzDecoder::new(&raw[..])
+        .read_to_string(&mut text)
+        .unwrap();
+    assert_eq!(text, "event,status,m_reco,chi2\n9,ok,172.5,0.5\n");
+}
+
+#[test]
+fn unwritable_output_is_a_clear_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("no-such-dir").join("out.csv");
+    let err = match EventWriter::create(&path) {
+        Ok(_) => panic!("created a file in a missing folder"),
+        Err(e) => e.to_string(),
+    };
+    assert!(
+        err.starts_with(&format!("{}: write error: ", path.display())),
+        "{err}"
+    );
+}
