@@ -36,12 +36,15 @@ pub fn two_body_momentum(m: f64, m1: f64, m2: f64) -> Option<f64> {
     if !(m.is_finite() && m1.is_finite() && m2.is_finite()) || m <= 0.0 || m1 < 0.0 || m2 < 0.0 {
         return None;
     }
-    let sum = m1 + m2;
-    if sum > m {
+    // Error-free sums (Knuth's TwoSum) keep m − (m1 + m2) exact to rounding
+    // even near threshold, where it is a small difference of large numbers.
+    let (sum, sum_err) = two_sum(m1, m2);
+    let (diff, diff_err) = two_sum(m1, -m2);
+    let below = (m - sum) - sum_err;
+    if below < 0.0 {
         return None;
     }
-    let diff = m1 - m2;
-    let lambda = (m - sum) * (m + sum) * (m - diff) * (m + diff);
+    let lambda = below * ((m + sum) + sum_err) * ((m - diff) - diff_err) * ((m + diff) + diff_err);
     Some(lambda.max(0.0).sqrt() / (2.0 * m))
 }
 
@@ -137,6 +140,14 @@ pub fn breit_wigner_mass(u: f64, mass: f64, width: f64, lo: f64, hi: f64) -> f64
     let t = t_lo + u.clamp(0.0, 1.0) * (t_hi - t_lo);
     let s = m2 + mg * t.tan();
     s.max(0.0).sqrt().clamp(lo, hi)
+}
+
+/// `a + b` rounded, and the rounding error (Knuth's TwoSum).
+#[inline]
+fn two_sum(a: f64, b: f64) -> (f64, f64) {
+    let s = a + b;
+    let bb = s - a;
+    (s, (a - (s - bb)) + (b - bb))
 }
 
 /// Pole mass, width and sampling window of one species.

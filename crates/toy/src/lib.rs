@@ -97,7 +97,7 @@
 //! | Q → b**Z** / t**Z** | `S.Z.q`, `S.Z.b`, `S.Z.e`, `S.Z.mu` (+ `S.Z.nu`) | `S.Z` |
 //! | Q → b**H** / t**H** | `S.H.b`, `S.H.g` | `S.H` |
 //! | t* → t**g** | `S.g` | |
-//! | tt̄ (each top is the parent) | `S.b`, `S.W.q`, `S.W.e`, `S.W.mu` (+ `S.W.nu`) | `S.W` |
+//! | tt̄ (each top is the parent) | `S.b`, `S.W.q`, `S.W.e`, `S.W.mu` (+ `S.W.nu`) | `S` (the top), `S.W` |
 //! | radiation | `isr` | |
 //!
 //! The side `S` is decided per event: a side is *leptonic* if any W in its
