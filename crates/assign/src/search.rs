@@ -1,0 +1,1499 @@
+//! The exact branch-and-bound χ² search over assignments.
+
+use quarry_event::{Event, Flavour};
+use quarry_lorentz::FourMomentum;
+use quarry_neutrino::{Neutrino, NeutrinoError, NeutrinoSolutions, WMassSolver};
+use rayon::prelude::*;
+
+use crate::hypothesis::{ConstraintKind, Hypothesis, Part, RoleKind, TagRule};
+use crate::{
+    MAX_COMPOSITES, MAX_CONSTRAINTS, MAX_JETS, MAX_K_BEST, MAX_LARGE_JETS, MAX_LEPTONS, MAX_ROLES,
+};
+
+/// Marks an unfilled slot in the search's compact choice arrays.
+const NONE: u8 = u8::MAX;
+/// Room for every jet plus the "no large jet" option.
+const MAX_CANDS: usize = MAX_JETS + 1;
+
+/// How b-tag scores enter the search.
+///
+/// ```
+/// use quarry_assign::BtagPolicy;
+/// let p = BtagPolicy::default();
+/// assert_eq!(p, BtagPolicy::Threshold(0.5));
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum BtagPolicy {
+    /// Hard working point: a jet with score **above** the threshold is
+    /// b-tagged. Roles with `tag = "b"` accept only tagged jets, roles with
+    /// `tag = "light"` only untagged ones. No χ² term. The default threshold,
+    /// 0.5, is [`quarry_event::Selection`]'s default.
+    Threshold(f64),
+    /// Score-weighted: every jet may fill every jet role, and the χ² gains a
+    /// term per jet role. The score `s ∈ [0, 1]` is read as the weight of a
+    /// tagged decision, interpolating a working point of b-jet efficiency
+    /// `ε_b` and light-jet mistag rate `ε_l`:
+    ///
+    /// ```text
+    /// p_b(s) = s ε_b + (1 − s)(1 − ε_b)      (probability-like weight, b jet)
+    /// p_l(s) = s ε_l + (1 − s)(1 − ε_l)      (same, light jet)
+    /// b role:     −2 ln( p_b / max(p_b, p_l) )
+    /// light role: −2 ln( p_l / max(p_b, p_l) )
+    /// any role:   0
+    /// ```
+    ///
+    /// Dividing by the larger weight keeps each term ≥ 0 (so the search's
+    /// bounds stay valid) and zero for a jet that looks like what its role
+    /// wants. Typical working points have ε_b ≈ 0.70 and ε_l ≈ 0.01 (common
+    /// practice; values from memory) — see [`BtagPolicy::weighted_default`].
+    Weighted {
+        /// b-jet tagging efficiency ε_b, in (0, 1).
+        b_efficiency: f64,
+        /// light-jet mistag rate ε_l, in (0, 1), below ε_b.
+        light_mistag: f64,
+    },
+    /// No b-tag information: every jet may fill every jet role, no term.
+    Ignore,
+}
+
+impl Default for BtagPolicy {
+    fn default() -> Self {
+        BtagPolicy::Threshold(quarry_event::Selection::default().btag_threshold)
+    }
+}
+
+impl BtagPolicy {
+    /// [`BtagPolicy::Weighted`] with ε_b = 0.70 and ε_l = 0.01 (typical
+    /// working point; from memory).
+    ///
+    /// ```
+    /// assert!(matches!(quarry_assign::BtagPolicy::weighted_default(),
+    ///     quarry_assign::BtagPolicy::Weighted { .. }));
+    /// ```
+    pub fn weighted_default() -> BtagPolicy {
+        BtagPolicy::Weighted {
+            b_efficiency: 0.70,
+            light_mistag: 0.01,
+        }
+    }
+
+    /// The χ² terms `(b role, light role)` for a jet with this score (both
+    /// zero for `Threshold` and `Ignore`, which filter instead). A score
+    /// outside [0, 1] is clamped; NaN counts as 0.
+    ///
+    /// ```
+    /// let p = quarry_assign::BtagPolicy::weighted_default();
+    /// let (b, light) = p.penalties(1.0);
+    /// assert_eq!(b, 0.0);
+    /// assert!(light > 8.0); // −2 ln(0.01 / 0.70) ≈ 8.5
+    /// ```
+    pub fn penalties(&self, score: f64) -> (f64, f64) {
+        match *self {
+            BtagPolicy::Weighted {
+                b_efficiency: eb,
+                light_mistag: el,
+            } => {
+                let s = if score.is_nan() {
+                    0.0
+                } else {
+                    score.clamp(0.0, 1.0)
+                };
+                let pb = s * eb + (1.0 - s) * (1.0 - eb);
+                let pl = s * el + (1.0 - s) * (1.0 - el);
+                let top = pb.max(pl);
+                (-2.0 * (pb / top).ln(), -2.0 * (pl / top).ln())
+            }
+            _ => (0.0, 0.0),
+        }
+    }
+
+    /// Whether a jet with this score may fill a role with this tag rule.
+    fn admits(&self, tag: TagRule, score: f64) -> bool {
+        match (*self, tag) {
+            (BtagPolicy::Threshold(t), TagRule::B) => score > t,
+            (BtagPolicy::Threshold(t), TagRule::Light) => score.is_nan() || score <= t,
+            _ => true,
+        }
+    }
+}
+
+/// Search settings.
+///
+/// ```
+/// let c = quarry_assign::SearchConfig::default();
+/// assert_eq!(c.k_best, 3);
+/// assert!(c.prune);
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SearchConfig {
+    /// How many best distinct assignments to return, 1 to [`MAX_K_BEST`].
+    /// Default 3.
+    pub k_best: usize,
+    /// Replaces the hypothesis's `leading_jets` when set (at most
+    /// [`MAX_JETS`], at least the hypothesis's [`Hypothesis::min_jets`]).
+    pub max_jets_override: Option<usize>,
+    /// b-tag handling. Default: [`BtagPolicy::default`].
+    pub btag: BtagPolicy,
+    /// Neutrino solver; every root it returns enters the search.
+    pub neutrino: WMassSolver,
+    /// `true` (default): branch-and-bound. `false`: visit every assignment
+    /// (same result, for benchmarks and cross-checks).
+    pub prune: bool,
+}
+
+impl Default for SearchConfig {
+    fn default() -> Self {
+        SearchConfig {
+            k_best: 3,
+            max_jets_override: None,
+            btag: BtagPolicy::default(),
+            neutrino: WMassSolver::default(),
+            prune: true,
+        }
+    }
+}
+
+/// A rejected [`SearchConfig`].
+#[derive(Clone, Copy, Debug, PartialEq, thiserror::Error)]
+pub enum SearchConfigError {
+    /// `k_best` is 0 or above [`MAX_K_BEST`].
+    #[error("k_best = {0} must be between 1 and {MAX_K_BEST}")]
+    BadK(usize),
+    /// The jet override is outside `[needed, MAX_JETS]`.
+    #[error("max_jets_override = {value} must be between {needed} and {MAX_JETS}")]
+    BadLeadingJets {
+        /// Value given.
+        value: usize,
+        /// Jet roles the hypothesis always fills.
+        needed: usize,
+    },
+    /// A threshold that is not finite, or weighted-policy rates outside
+    /// (0, 1) or with ε_l ≥ ε_b.
+    #[error("b-tag policy {0:?} is invalid")]
+    BadBtag(BtagPolicy),
+}
+
+/// Which reconstructed object fills a role.
+///
+/// `pos` is the position in the event's vector (`event.jets`,
+/// `event.electrons`/`event.muons` by flavour, `event.fat_jets`); `index` is
+/// that object's own `index` field, its position in the *input*, for naming
+/// input objects in outputs.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
+pub enum ObjectRef {
+    /// A small-radius jet.
+    Jet {
+        /// Position in `event.jets`.
+        pos: u32,
+        /// The jet's input index.
+        index: u32,
+    },
+    /// A charged lepton.
+    Lepton {
+        /// Electron or muon (which vector `pos` indexes).
+        flavour: Flavour,
+        /// Position in `event.electrons` or `event.muons`.
+        pos: u32,
+        /// The lepton's input index.
+        index: u32,
+    },
+    /// A large-radius jet.
+    LargeJet {
+        /// Position in `event.fat_jets`.
+        pos: u32,
+        /// The large jet's input index.
+        index: u32,
+    },
+    /// The neutrino solved from MET: root `root` of the solutions
+    /// (0 = smaller |pz|); its four-vector is in
+    /// [`RankedAssignment::neutrino`].
+    Neutrino {
+        /// Root index.
+        root: u8,
+    },
+    /// Unfilled: the role's composite was filled whole by a large jet (or an
+    /// optional large-jet role was not used).
+    #[default]
+    Empty,
+}
+
+/// One scored assignment of objects to roles.
+///
+/// Small and `Copy` (fixed-size arrays, sized by [`MAX_ROLES`],
+/// [`MAX_COMPOSITES`], [`MAX_CONSTRAINTS`]); indices follow the hypothesis's
+/// declaration order ([`Hypothesis::roles`], [`Hypothesis::composites`],
+/// [`Hypothesis::constraints`]).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RankedAssignment {
+    chi2: f64,
+    btag_chi2: f64,
+    n_roles: u8,
+    n_composites: u8,
+    n_constraints: u8,
+    objects: [ObjectRef; MAX_ROLES],
+    composite_p4: [FourMomentum; MAX_COMPOSITES],
+    leaf_masks: [u16; MAX_COMPOSITES],
+    terms: [f64; MAX_CONSTRAINTS],
+    neutrino: Option<Neutrino>,
+}
+
+impl RankedAssignment {
+    /// Total χ²: the constraint terms plus the b-tag terms.
+    pub fn chi2(&self) -> f64 {
+        self.chi2
+    }
+
+    /// The part of [`chi2`](Self::chi2) from b-tag terms (0 unless the policy
+    /// is [`BtagPolicy::Weighted`]).
+    pub fn btag_chi2(&self) -> f64 {
+        self.btag_chi2
+    }
+
+    /// The object filling each role, by role index.
+    pub fn objects(&self) -> &[ObjectRef] {
+        &self.objects[..self.n_roles as usize]
+    }
+
+    /// The object filling role `role` ([`ObjectRef::Empty`] if out of range).
+    pub fn object(&self, role: usize) -> ObjectRef {
+        self.objects().get(role).copied().unwrap_or_default()
+    }
+
+    /// Four-momentum of each composite, by composite index.
+    pub fn composite_p4s(&self) -> &[FourMomentum] {
+        &self.composite_p4[..self.n_composites as usize]
+    }
+
+    /// Four-momentum of composite `c` (zero vector if out of range).
+    pub fn composite_p4(&self, c: usize) -> FourMomentum {
+        self.composite_p4s().get(c).copied().unwrap_or_default()
+    }
+
+    /// Mass of composite `c` [GeV] (see `FourMomentum::m` for the sign
+    /// convention of space-like sums).
+    pub fn composite_mass(&self, c: usize) -> f64 {
+        self.composite_p4(c).m()
+    }
+
+    /// The χ² term of each constraint, by constraint index.
+    pub fn terms(&self) -> &[f64] {
+        &self.terms[..self.n_constraints as usize]
+    }
+
+    /// The neutrino used, if the hypothesis has a neutrino role: the root
+    /// index is in that role's [`ObjectRef::Neutrino`], the solution (with its
+    /// `case` and `met_shift`) here.
+    pub fn neutrino(&self) -> Option<Neutrino> {
+        self.neutrino
+    }
+
+    /// The measured objects summed into composite `c` (roles under it,
+    /// recursively, skipping empty ones), in role order. For the kinematic
+    /// fit: each constraint's composites expand to these objects.
+    ///
+    /// ```
+    /// # use quarry_assign::*;
+    /// # fn f(h: &Hypothesis, a: &RankedAssignment) {
+    /// let w = h.composite_index("W_had").unwrap();
+    /// for obj in a.leaves_of(w) {
+    ///     println!("{obj:?}");
+    /// }
+    /// # }
+    /// ```
+    pub fn leaves_of(&self, c: usize) -> impl Iterator<Item = ObjectRef> + '_ {
+        let mask = self.leaf_masks.get(c).copied().unwrap_or(0);
+        self.objects()
+            .iter()
+            .enumerate()
+            .filter(move |(r, o)| mask & (1 << r) != 0 && **o != ObjectRef::Empty)
+            .map(|(_, o)| *o)
+    }
+
+    /// Positions in `event.jets` of every small-radius jet this assignment
+    /// uses, in role order.
+    pub fn used_jets(&self) -> impl Iterator<Item = u32> + '_ {
+        self.objects().iter().filter_map(|o| match o {
+            ObjectRef::Jet { pos, .. } => Some(*pos),
+            _ => None,
+        })
+    }
+
+    /// The four-momentum of `object` in `event` (the neutrino from this
+    /// assignment); `None` for [`ObjectRef::Empty`] or a position that the
+    /// event does not have.
+    pub fn p4_of(&self, event: &Event, object: ObjectRef) -> Option<FourMomentum> {
+        match object {
+            ObjectRef::Jet { pos, .. } => event.jets.get(pos as usize).map(|j| j.p4),
+            ObjectRef::Lepton { flavour, pos, .. } => match flavour {
+                Flavour::Electron => event.electrons.get(pos as usize).map(|l| l.p4),
+                Flavour::Muon => event.muons.get(pos as usize).map(|l| l.p4),
+            },
+            ObjectRef::LargeJet { pos, .. } => event.fat_jets.get(pos as usize).map(|j| j.p4),
+            ObjectRef::Neutrino { .. } => self.neutrino.map(|n| n.p4),
+            ObjectRef::Empty => None,
+        }
+    }
+}
+
+/// Why a search returned no assignment (or [`SearchStatus::Found`]).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum SearchStatus {
+    /// At least one assignment was found.
+    Found,
+    /// Fewer usable jets (finite four-vectors) than jet roles to fill.
+    TooFewJets {
+        /// Jet roles always filled.
+        needed: usize,
+        /// Usable jets among the leading ones.
+        available: usize,
+    },
+    /// Fewer usable leptons than lepton roles.
+    TooFewLeptons {
+        /// Lepton roles.
+        needed: usize,
+        /// Usable leptons.
+        available: usize,
+    },
+    /// Fewer usable large-radius jets than required large-jet roles.
+    TooFewLargeJets {
+        /// Required large-jet roles.
+        needed: usize,
+        /// Usable large-radius jets.
+        available: usize,
+    },
+    /// The neutrino solver failed for every lepton that could source it.
+    NeutrinoFailed(NeutrinoError),
+    /// Enough objects, but none satisfies the requirements together (b-tags,
+    /// charges, flavours, mass windows, overlaps).
+    NoValidAssignment,
+}
+
+/// How much work a search did.
+///
+/// `complete` counts complete assignments whose χ² was computed; `partial`
+/// counts partial assignments (an object placed in a role before the last)
+/// whose running χ² was computed. Without pruning, `complete` is the size of
+/// the whole assignment space.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Evaluated {
+    /// Complete assignments scored.
+    pub complete: u64,
+    /// Partial assignments visited.
+    pub partial: u64,
+}
+
+/// The result of searching one event.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SearchOutcome {
+    /// Found, or why not.
+    pub status: SearchStatus,
+    /// The best distinct assignments, ascending χ² (ties: by the objects in
+    /// role order, lower positions first). Empty unless `status` is `Found`.
+    pub ranked: Vec<RankedAssignment>,
+    /// Work done.
+    pub evaluated: Evaluated,
+}
+
+impl SearchOutcome {
+    /// The best assignment, if any.
+    pub fn best(&self) -> Option<&RankedAssignment> {
+        self.ranked.first()
+    }
+}
+
+/// What kind of object a search step places.
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum StepKind {
+    Jet(TagRule),
+    Lepton(Option<Flavour>, Option<i8>),
+    Neutrino { lepton: usize },
+    LargeJet { lo: f64, hi: f64, optional: bool },
+}
+
+#[derive(Clone, Debug)]
+struct Step {
+    role: usize,
+    kind: StepKind,
+    /// Earlier member of this role's interchangeable group: the object here
+    /// must come after that one's (canonical order, each set once).
+    sym_role: Option<usize>,
+    /// The optional large-jet role that would fill this jet role's composite.
+    skip_if: Option<usize>,
+    /// Lepton pair rules with roles placed earlier: (other role, pair index).
+    pair_checks: Vec<(usize, usize)>,
+    /// Composites completed by this step, bottom-up.
+    close_comps: Vec<usize>,
+    /// Constraints completed by this step.
+    close_cons: Vec<usize>,
+}
+
+/// The order in which roles are filled and what completes at each step.
+#[derive(Clone, Debug)]
+struct Plan {
+    steps: Vec<Step>,
+    /// Per composite: role parts, composite parts, whole role.
+    comp_roles: Vec<Vec<usize>>,
+    comp_comps: Vec<Vec<usize>>,
+    comp_whole: Vec<Option<usize>>,
+    /// Lepton roles the neutrino may come from (at most one).
+    nu_lepton: Option<usize>,
+}
+
+fn kind_rank(k: &RoleKind) -> u8 {
+    match k {
+        RoleKind::Lepton { .. } => 0,
+        RoleKind::Neutrino { .. } => 1,
+        RoleKind::LargeJet { .. } => 2,
+        RoleKind::Jet { .. } => 3,
+    }
+}
+
+impl Plan {
+    /// Orders the roles so that constraints complete as early as possible:
+    /// repeatedly pick the unfinished constraint whose missing roles have the
+    /// smallest estimated branching product, append them (leptons, neutrino,
+    /// large jets, jets), and finish with roles no constraint needs.
+    fn new(h: &Hypothesis, n_jets: usize, btag: &BtagPolicy) -> Plan {
+        let roles = h.roles();
+        let n = roles.len();
+        let branching = |r: usize| -> f64 {
+            match roles[r].kind {
+                RoleKind::Jet { tag } => {
+                    let nj = n_jets.max(1) as f64;
+                    match (btag, tag) {
+                        (BtagPolicy::Threshold(_), TagRule::B) => (nj / 3.0).max(1.5),
+                        _ => nj,
+                    }
+                }
+                RoleKind::Lepton { .. } => 1.5,
+                RoleKind::Neutrino { .. } => 2.0,
+                RoleKind::LargeJet { .. } => 2.0,
+            }
+        };
+        let need_of = |mut mask: u16| {
+            for (r, role) in roles.iter().enumerate() {
+                if mask & (1 << r) != 0 {
+                    if let RoleKind::Neutrino { lepton } = role.kind {
+                        mask |= 1 << lepton;
+                    }
+                }
+            }
+            mask
+        };
+        let cons_mask: Vec<u16> = h
+            .constraints()
+            .iter()
+            .map(|c| match c.kind {
+                ConstraintKind::Mass { composite, .. } => {
+                    need_of(h.composites()[composite].leaf_mask)
+                }
+                ConstraintKind::EqualMass { composites: [a, b] } => {
+                    need_of(h.composites()[a].leaf_mask | h.composites()[b].leaf_mask)
+                }
+            })
+            .collect();
+        let mut order: Vec<usize> = Vec::with_capacity(n);
+        let mut placed = 0u16;
+        let push_sorted = |mask: u16, order: &mut Vec<usize>, placed: &mut u16| {
+            let mut add: Vec<usize> = (0..n)
+                .filter(|&r| mask & (1 << r) != 0 && *placed & (1 << r) == 0)
+                .collect();
+            add.sort_by_key(|&r| (kind_rank(&roles[r].kind), r));
+            for r in add {
+                order.push(r);
+                *placed |= 1 << r;
+            }
+        };
+        loop {
+            let mut best: Option<(f64, usize)> = None;
+            for (k, &m) in cons_mask.iter().enumerate() {
+                let missing = m & !placed;
+                if missing == 0 {
+                    continue;
+                }
+                let mut cost = 1.0;
+                for r in 0..n {
+                    if missing & (1 << r) != 0 {
+                        cost *= branching(r);
+                    }
+                }
+                for g in h.interchangeable() {
+                    let k = g.iter().filter(|&&r| missing & (1 << r) != 0).count();
+                    cost /= (1..=k).product::<usize>() as f64;
+                }
+                if best.is_none_or(|(c, _)| cost < c) {
+                    best = Some((cost, k));
+                }
+            }
+            match best {
+                Some((_, k)) => push_sorted(cons_mask[k], &mut order, &mut placed),
+                None => break,
+            }
+        }
+        push_sorted(need_of(u16::MAX >> (16 - n)), &mut order, &mut placed);
+
+        let depth_of = |r: usize| order.iter().position(|&x| x == r).unwrap_or(0);
+        let comps = h.composites();
+        let comp_close: Vec<usize> = comps
+            .iter()
+            .map(|c| c.leaves().map(depth_of).max().unwrap_or(0))
+            .collect();
+        let cons_close: Vec<usize> = h
+            .constraints()
+            .iter()
+            .map(|c| match c.kind {
+                ConstraintKind::Mass { composite, .. } => comp_close[composite],
+                ConstraintKind::EqualMass { composites: [a, b] } => {
+                    comp_close[a].max(comp_close[b])
+                }
+            })
+            .collect();
+        let mut steps = Vec::with_capacity(n);
+        for (d, &r) in order.iter().enumerate() {
+            let kind = match roles[r].kind {
+                RoleKind::Jet { tag } => StepKind::Jet(tag),
+                RoleKind::Lepton { flavour, charge } => StepKind::Lepton(flavour, charge),
+                RoleKind::Neutrino { lepton } => StepKind::Neutrino { lepton },
+                RoleKind::LargeJet {
+                    mass_min,
+                    mass_max,
+                    fills,
+                } => StepKind::LargeJet {
+                    lo: mass_min,
+                    hi: mass_max,
+                    optional: fills.is_some(),
+                },
+            };
+            let sym_role = roles[r].group.and_then(|g| {
+                order[..d]
+                    .iter()
+                    .rev()
+                    .find(|&&x| roles[x].group == Some(g))
+                    .copied()
+            });
+            let skip_if = comps
+                .iter()
+                .find(|c| c.whole.is_some() && c.parts.contains(&Part::Role(r)))
+                .and_then(|c| c.whole);
+            let pair_checks = h
+                .lepton_pairs()
+                .iter()
+                .enumerate()
+                .filter_map(|(k, p)| {
+                    let other = if p.roles[0] == r {
+                        p.roles[1]
+                    } else if p.roles[1] == r {
+                        p.roles[0]
+                    } else {
+                        return None;
+                    };
+                    (depth_of(other) < d).then_some((other, k))
+                })
+                .collect();
+            let close_comps = h
+                .composites_bottom_up()
+                .iter()
+                .copied()
+                .filter(|&c| comp_close[c] == d)
+                .collect();
+            let close_cons = (0..cons_close.len())
+                .filter(|&k| cons_close[k] == d)
+                .collect();
+            steps.push(Step {
+                role: r,
+                kind,
+                sym_role,
+                skip_if,
+                pair_checks,
+                close_comps,
+                close_cons,
+            });
+        }
+        let comp_roles = comps
+            .iter()
+            .map(|c| {
+                c.parts
+                    .iter()
+                    .filter_map(|p| match p {
+                        Part::Role(r) => Some(*r),
+                        Part::Composite(_) => None,
+                    })
+                    .collect()
+            })
+            .collect();
+        let comp_comps = comps
+            .iter()
+            .map(|c| {
+                c.parts
+                    .iter()
+                    .filter_map(|p| match p {
+                        Part::Composite(j) => Some(*j),
+                        Part::Role(_) => None,
+                    })
+                    .collect()
+            })
+            .collect();
+        Plan {
+            steps,
+            comp_roles,
+            comp_comps,
+            comp_whole: comps.iter().map(|c| c.whole).collect(),
+            nu_lepton: roles.iter().find_map(|r| match r.kind {
+                RoleKind::Neutrino { lepton } => Some(lepton),
+                _ => None,
+            }),
+        }
+    }
+}
+
+/// One finished assignment held in the K-best list.
+#[derive(Clone, Copy, Debug)]
+struct Leaf {
+    chi2: f64,
+    choice: [u8; MAX_ROLES],
+}
+
+/// Per-event buffers, allocated once per [`Searcher`].
+#[derive(Clone, Debug)]
+struct Workspace {
+    // Object pools (leading objects, finite four-vectors).
+    n_jets: usize,
+    jet_p4: [FourMomentum; MAX_JETS],
+    jet_pos: [u32; MAX_JETS],
+    jet_index: [u32; MAX_JETS],
+    jet_score: [f64; MAX_JETS],
+    pen_b: [f64; MAX_JETS],
+    pen_l: [f64; MAX_JETS],
+    n_leps: usize,
+    lep_p4: [FourMomentum; MAX_LEPTONS],
+    lep_flav: [Flavour; MAX_LEPTONS],
+    lep_charge: [i8; MAX_LEPTONS],
+    lep_pos: [u32; MAX_LEPTONS],
+    lep_index: [u32; MAX_LEPTONS],
+    n_large: usize,
+    large_p4: [FourMomentum; MAX_LARGE_JETS],
+    large_pos: [u32; MAX_LARGE_JETS],
+    large_index: [u32; MAX_LARGE_JETS],
+    large_overlap: [u64; MAX_LARGE_JETS],
+    nu: [Option<NeutrinoSolutions>; MAX_LEPTONS],
+    // Candidates per depth: object and b-tag term.
+    n_cand: [usize; MAX_ROLES],
+    cand: [[(f64, u8); MAX_CANDS]; MAX_ROLES],
+    buf: [[(f64, u8); MAX_CANDS]; MAX_ROLES],
+    rest_min: [f64; MAX_ROLES + 1],
+    closest_dev: [f64; MAX_CONSTRAINTS],
+    // Current partial assignment.
+    choice: [u8; MAX_ROLES],
+    role_p4: [FourMomentum; MAX_ROLES],
+    comp_p4: [FourMomentum; MAX_COMPOSITES],
+    comp_m: [f64; MAX_COMPOSITES],
+    used_jets: u64,
+    blocked_jets: u64,
+    used_leps: u32,
+    used_large: u32,
+    // Results.
+    best: Vec<Leaf>,
+    k: usize,
+    prune: bool,
+    evaluated: Evaluated,
+    // Scratch for sorting the input jets.
+    sort_scratch: Vec<(f64, u32)>,
+}
+
+/// A reusable search engine for one hypothesis and configuration.
+///
+/// All buffers are allocated in [`Searcher::new`]; a search allocates only
+/// the returned `Vec` of ranked assignments (none with
+/// [`Searcher::search_into`] once its vector has capacity), never per
+/// assignment.
+///
+/// ```
+/// use quarry_assign::{presets, SearchConfig, Searcher, SearchStatus};
+/// let h = presets::get("ttbar-ljets").unwrap();
+/// let mut s = Searcher::new(&h, SearchConfig::default()).unwrap();
+/// let out = s.search(&quarry_event::Event::new(1));
+/// assert!(matches!(out.status, SearchStatus::TooFewJets { .. }));
+/// ```
+#[derive(Clone, Debug)]
+pub struct Searcher {
+    hyp: Hypothesis,
+    config: SearchConfig,
+    leading: usize,
+    plan: Plan,
+    ws: Box<Workspace>,
+}
+
+impl Searcher {
+    /// Prepares a search: checks the configuration, orders the roles and
+    /// allocates every buffer.
+    ///
+    /// # Errors
+    /// [`SearchConfigError`] for a bad `k_best`, jet override or b-tag policy.
+    pub fn new(hyp: &Hypothesis, config: SearchConfig) -> Result<Searcher, SearchConfigError> {
+        if config.k_best == 0 || config.k_best > MAX_K_BEST {
+            return Err(SearchConfigError::BadK(config.k_best));
+        }
+        let leading = match config.max_jets_override {
+            Some(v) if v > MAX_JETS || v < hyp.min_jets() => {
+                return Err(SearchConfigError::BadLeadingJets {
+                    value: v,
+                    needed: hyp.min_jets(),
+                })
+            }
+            Some(v) => v,
+            None => hyp.leading_jets(),
+        };
+        match config.btag {
+            BtagPolicy::Threshold(t) if !t.is_finite() => {
+                return Err(SearchConfigError::BadBtag(config.btag))
+            }
+            BtagPolicy::Weighted {
+                b_efficiency: eb,
+                light_mistag: el,
+            } if !(eb > 0.0 && eb < 1.0 && el > 0.0 && el < eb) => {
+                return Err(SearchConfigError::BadBtag(config.btag))
+            }
+            _ => {}
+        }
+        let plan = Plan::new(hyp, leading, &config.btag);
+        let ws = Box::new(Workspace {
+            n_jets: 0,
+            jet_p4: [FourMomentum::ZERO; MAX_JETS],
+            jet_pos: [0; MAX_JETS],
+            jet_index: [0; MAX_JETS],
+            jet_score: [0.0; MAX_JETS],
+            pen_b: [0.0; MAX_JETS],
+            pen_l: [0.0; MAX_JETS],
+            n_leps: 0,
+            lep_p4: [FourMomentum::ZERO; MAX_LEPTONS],
+            lep_flav: [Flavour::Electron; MAX_LEPTONS],
+            lep_charge: [0; MAX_LEPTONS],
+            lep_pos: [0; MAX_LEPTONS],
+            lep_index: [0; MAX_LEPTONS],
+            n_large: 0,
+            large_p4: [FourMomentum::ZERO; MAX_LARGE_JETS],
+            large_pos: [0; MAX_LARGE_JETS],
+            large_index: [0; MAX_LARGE_JETS],
+            large_overlap: [0; MAX_LARGE_JETS],
+            nu: [None; MAX_LEPTONS],
+            n_cand: [0; MAX_ROLES],
+            cand: [[(0.0, 0); MAX_CANDS]; MAX_ROLES],
+            buf: [[(0.0, 0); MAX_CANDS]; MAX_ROLES],
+            rest_min: [0.0; MAX_ROLES + 1],
+            closest_dev: [0.0; MAX_CONSTRAINTS],
+            choice: [NONE; MAX_ROLES],
+            role_p4: [FourMomentum::ZERO; MAX_ROLES],
+            comp_p4: [FourMomentum::ZERO; MAX_COMPOSITES],
+            comp_m: [0.0; MAX_COMPOSITES],
+            used_jets: 0,
+            blocked_jets: 0,
+            used_leps: 0,
+            used_large: 0,
+            best: Vec::with_capacity(config.k_best + 1),
+            k: config.k_best,
+            prune: config.prune,
+            evaluated: Evaluated::default(),
+            sort_scratch: Vec::with_capacity(64),
+        });
+        Ok(Searcher {
+            hyp: hyp.clone(),
+            config,
+            leading,
+            plan,
+            ws,
+        })
+    }
+
+    /// The hypothesis searched.
+    pub fn hypothesis(&self) -> &Hypothesis {
+        &self.hyp
+    }
+
+    /// The configuration in use.
+    pub fn config(&self) -> &SearchConfig {
+        &self.config
+    }
+
+    /// Role indices in the order the search fills them (constraints that
+    /// close early first). Exposed for diagnostics.
+    pub fn fill_order(&self) -> Vec<usize> {
+        self.plan.steps.iter().map(|s| s.role).collect()
+    }
+
+    /// Searches one event for the best assignments. Never panics; problems
+    /// with the event are reported in [`SearchOutcome::status`].
+    pub fn search(&mut self, event: &Event) -> SearchOutcome {
+        let mut out = SearchOutcome {
+            status: SearchStatus::NoValidAssignment,
+            ranked: Vec::with_capacity(self.config.k_best),
+            evaluated: Evaluated::default(),
+        };
+        self.search_into(event, &mut out);
+        out
+    }
+
+    /// Like [`search`](Self::search), reusing `out`'s vector.
+    pub fn search_into(&mut self, event: &Event, out: &mut SearchOutcome) {
+        out.ranked.clear();
+        out.evaluated = Evaluated::default();
+        out.status = self.run(event);
+        out.evaluated = self.ws.evaluated;
+        if out.status == SearchStatus::Found {
+            for i in 0..self.ws.best.len() {
+                let leaf = self.ws.best[i];
+                out.ranked.push(self.ws.build(&self.hyp, &self.plan, &leaf));
+            }
+        }
+    }
+
+    fn run(&mut self, event: &Event) -> SearchStatus {
+        let ws = &mut *self.ws;
+        let hyp = &self.hyp;
+        let plan = &self.plan;
+        ws.best.clear();
+        ws.evaluated = Evaluated::default();
+        ws.load_objects(
+            event,
+            self.leading,
+            hyp.large_jet_overlap_dr(),
+            &self.config.btag,
+        );
+        if ws.n_jets < hyp.min_jets() {
+            return SearchStatus::TooFewJets {
+                needed: hyp.min_jets(),
+                available: ws.n_jets,
+            };
+        }
+        if ws.n_leps < hyp.min_leptons() {
+            return SearchStatus::TooFewLeptons {
+                needed: hyp.min_leptons(),
+                available: ws.n_leps,
+            };
+        }
+        if ws.n_large < hyp.min_large_jets() {
+            return SearchStatus::TooFewLargeJets {
+                needed: hyp.min_large_jets(),
+                available: ws.n_large,
+            };
+        }
+        ws.build_candidates(plan, &self.config.btag);
+        // Neutrino solutions for every lepton that may source it.
+        let mut nu_error = None;
+        let mut nu_ok = false;
+        if let Some(lrole) = plan.nu_lepton {
+            ws.nu = [None; MAX_LEPTONS];
+            let d = plan.steps.iter().position(|s| s.role == lrole).unwrap_or(0);
+            for i in 0..ws.n_cand[d] {
+                let l = ws.cand[d][i].1 as usize;
+                match self
+                    .config
+                    .neutrino
+                    .solve(&ws.lep_p4[l], event.met.px, event.met.py)
+                {
+                    Ok(s) => {
+                        ws.nu[l] = Some(s);
+                        nu_ok = true;
+                    }
+                    Err(e) => nu_error = nu_error.or(Some(e)),
+                }
+            }
+        }
+        ws.prepare_closest(hyp);
+        ws.dfs(hyp, plan, 0, 0.0);
+        if !ws.best.is_empty() {
+            SearchStatus::Found
+        } else if let (Some(e), false) = (nu_error, nu_ok) {
+            SearchStatus::NeutrinoFailed(e)
+        } else {
+            SearchStatus::NoValidAssignment
+        }
+    }
+}
+
+/// Searches every event in parallel (rayon; one [`Searcher`] per worker),
+/// returning outcomes in input order.
+///
+/// # Errors
+/// [`SearchConfigError`] if the configuration is invalid.
+///
+/// ```
+/// use quarry_assign::{presets, search_all, SearchConfig};
+/// let h = presets::get("bwbw-ljets").unwrap();
+/// let events = vec![quarry_event::Event::new(1), quarry_event::Event::new(2)];
+/// let out = search_all(&h, &events, &SearchConfig::default()).unwrap();
+/// assert_eq!(out.len(), 2);
+/// ```
+pub fn search_all(
+    hyp: &Hypothesis,
+    events: &[Event],
+    config: &SearchConfig,
+) -> Result<Vec<SearchOutcome>, SearchConfigError> {
+    let proto = Searcher::new(hyp, *config)?;
+    Ok(events
+        .par_iter()
+        .map_init(|| proto.clone(), |s, e| s.search(e))
+        .collect())
+}
+
+/// Saved occupancy, restored after a branch.
+type Saved = (u64, u64, u32, u32);
+
+impl Workspace {
+    fn load_objects(&mut self, event: &Event, leading: usize, overlap_dr: f64, btag: &BtagPolicy) {
+        // Jets: finite four-vectors, leading `leading` by pt (ties: input
+        // position), so 10 000 jets cost one partial selection.
+        let scratch = &mut self.sort_scratch;
+        scratch.clear();
+        for (i, j) in event.jets.iter().enumerate() {
+            if j.p4.is_finite() {
+                scratch.push((j.p4.pt(), i as u32));
+            }
+        }
+        let by_pt = |a: &(f64, u32), b: &(f64, u32)| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1));
+        let keep = leading.min(scratch.len()).min(MAX_JETS);
+        if keep > 0 && keep < scratch.len() {
+            scratch.select_nth_unstable_by(keep - 1, by_pt);
+        }
+        scratch.truncate(keep);
+        scratch.sort_unstable_by(by_pt);
+        self.n_jets = keep;
+        for (k, &(_, i)) in scratch.iter().enumerate() {
+            let j = &event.jets[i as usize];
+            self.jet_p4[k] = j.p4;
+            self.jet_pos[k] = i;
+            self.jet_index[k] = j.index;
+            self.jet_score[k] = j.btag;
+            let (b, l) = btag.penalties(j.btag);
+            self.pen_b[k] = b;
+            self.pen_l[k] = l;
+        }
+        // Leptons: finite, by pt, at most MAX_LEPTONS.
+        scratch.clear();
+        let ne = event.electrons.len();
+        for (i, l) in event.leptons().enumerate() {
+            if l.p4.is_finite() {
+                scratch.push((l.p4.pt(), i as u32));
+            }
+        }
+        scratch.sort_unstable_by(by_pt);
+        scratch.truncate(MAX_LEPTONS);
+        self.n_leps = scratch.len();
+        for (k, &(_, i)) in scratch.iter().enumerate() {
+            let i = i as usize;
+            let (l, pos) = if i < ne {
+                (&event.electrons[i], i)
+            } else {
+                (&event.muons[i - ne], i - ne)
+            };
+            self.lep_p4[k] = l.p4;
+            self.lep_flav[k] = l.flavour;
+            self.lep_charge[k] = l.charge;
+            self.lep_pos[k] = pos as u32;
+            self.lep_index[k] = l.index;
+        }
+        // Large-radius jets: finite, by pt, at most MAX_LARGE_JETS.
+        scratch.clear();
+        for (i, j) in event.fat_jets.iter().enumerate() {
+            if j.p4.is_finite() {
+                scratch.push((j.p4.pt(), i as u32));
+            }
+        }
+        scratch.sort_unstable_by(by_pt);
+        scratch.truncate(MAX_LARGE_JETS);
+        self.n_large = scratch.len();
+        let dr2 = overlap_dr * overlap_dr;
+        for (k, &(_, i)) in scratch.iter().enumerate() {
+            let f = &event.fat_jets[i as usize];
+            self.large_p4[k] = f.p4;
+            self.large_pos[k] = i;
+            self.large_index[k] = f.index;
+            let mut mask = 0u64;
+            for j in 0..self.n_jets {
+                if self.jet_p4[j].delta_r2(&f.p4) < dr2 {
+                    mask |= 1 << j;
+                }
+            }
+            self.large_overlap[k] = mask;
+        }
+    }
+
+    fn build_candidates(&mut self, plan: &Plan, btag: &BtagPolicy) {
+        for (d, step) in plan.steps.iter().enumerate() {
+            let mut n = 0;
+            let mut push = |pen: f64, obj: u8, cand: &mut [(f64, u8); MAX_CANDS]| {
+                cand[n] = (pen, obj);
+                n += 1;
+            };
+            match step.kind {
+                StepKind::Jet(tag) => {
+                    for j in 0..self.n_jets {
+                        if btag.admits(tag, self.jet_score[j]) {
+                            let pen = match tag {
+                                TagRule::B => self.pen_b[j],
+                                TagRule::Light => self.pen_l[j],
+                                TagRule::Any => 0.0,
+                            };
+                            push(pen, j as u8, &mut self.cand[d]);
+                        }
+                    }
+                }
+                StepKind::Lepton(flav, charge) => {
+                    for l in 0..self.n_leps {
+                        if flav.is_none_or(|f| f == self.lep_flav[l])
+                            && charge.is_none_or(|q| q == self.lep_charge[l])
+                        {
+                            push(0.0, l as u8, &mut self.cand[d]);
+                        }
+                    }
+                }
+                StepKind::Neutrino { .. } => {}
+                StepKind::LargeJet { lo, hi, optional } => {
+                    if optional {
+                        push(0.0, NONE, &mut self.cand[d]);
+                    }
+                    for f in 0..self.n_large {
+                        let m = self.large_p4[f].m();
+                        if m >= lo && m <= hi {
+                            push(0.0, f as u8, &mut self.cand[d]);
+                        }
+                    }
+                }
+            }
+            self.n_cand[d] = n;
+        }
+        // Admissible lower bound on the b-tag terms still to come.
+        let nsteps = plan.steps.len();
+        self.rest_min[nsteps] = 0.0;
+        for d in (0..nsteps).rev() {
+            let step = &plan.steps[d];
+            let min_here = if step.skip_if.is_some() || !matches!(step.kind, StepKind::Jet(_)) {
+                0.0
+            } else {
+                self.cand[d][..self.n_cand[d]]
+                    .iter()
+                    .map(|c| c.0)
+                    .fold(f64::INFINITY, f64::min)
+            };
+            let min_here = if min_here.is_finite() { min_here } else { 0.0 };
+            self.rest_min[d] = self.rest_min[d + 1] + min_here;
+        }
+    }
+}
+
+impl Workspace {
+    /// For each `only_closest` constraint: the smallest |m − target| over the
+    /// lepton combinations its composite allows.
+    fn prepare_closest(&mut self, hyp: &Hypothesis) {
+        for (k, c) in hyp.constraints().iter().enumerate() {
+            if !c.only_closest {
+                continue;
+            }
+            let ConstraintKind::Mass { composite, target } = c.kind else {
+                continue;
+            };
+            let mut roles = [0usize; MAX_ROLES];
+            let mut nr = 0;
+            for r in hyp.composites()[composite].leaves() {
+                roles[nr] = r;
+                nr += 1;
+            }
+            let mut pick = [0u8; MAX_ROLES];
+            let mut best = f64::INFINITY;
+            self.closest_rec(hyp, &roles[..nr], 0, &mut pick, 0, target, &mut best);
+            self.closest_dev[k] = best;
+        }
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn closest_rec(
+        &self,
+        hyp: &Hypothesis,
+        roles: &[usize],
+        i: usize,
+        pick: &mut [u8; MAX_ROLES],
+        used: u32,
+        target: f64,
+        best: &mut f64,
+    ) {
+        if i == roles.len() {
+            let p: FourMomentum = pick[..i].iter().map(|&l| self.lep_p4[l as usize]).sum();
+            let dev = (p.m() - target).abs();
+            if dev < *best {
+                *best = dev;
+            }
+            return;
+        }
+        let RoleKind::Lepton { flavour, charge } = hyp.roles()[roles[i]].kind else {
+            return;
+        };
+        'leptons: for l in 0..self.n_leps {
+            if used & (1 << l) != 0
+                || flavour.is_some_and(|f| f != self.lep_flav[l])
+                || charge.is_some_and(|q| q != self.lep_charge[l])
+            {
+                continue;
+            }
+            for p in hyp.lepton_pairs() {
+                for t in 0..i {
+                    let hit = (p.roles[0] == roles[i] && p.roles[1] == roles[t])
+                        || (p.roles[1] == roles[i] && p.roles[0] == roles[t]);
+                    let o = pick[t] as usize;
+                    if hit
+                        && !p.allows(
+                            (self.lep_flav[l], self.lep_charge[l]),
+                            (self.lep_flav[o], self.lep_charge[o]),
+                        )
+                    {
+                        continue 'leptons;
+                    }
+                }
+            }
+            pick[i] = l as u8;
+            self.closest_rec(hyp, roles, i + 1, pick, used | (1 << l), target, best);
+        }
+    }
+
+    /// Fills `buf[d]` with the candidates admissible given the roles already
+    /// placed; returns how many.
+    #[inline]
+    fn gather(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize) -> usize {
+        let step = &plan.steps[d];
+        let mut n = 0;
+        match step.kind {
+            StepKind::Neutrino { lepton } => {
+                let l = self.choice[lepton];
+                if let Some(s) = self.nu.get(l as usize).copied().flatten() {
+                    for r in 0..s.len() {
+                        self.buf[d][n] = (0.0, r as u8);
+                        n += 1;
+                    }
+                }
+                return n;
+            }
+            _ => {
+                if let Some(w) = step.skip_if {
+                    if self.choice[w] != NONE {
+                        self.buf[d][0] = (0.0, NONE);
+                        return 1;
+                    }
+                }
+            }
+        }
+        let after = step.sym_role.map(|s| self.choice[s]);
+        for i in 0..self.n_cand[d] {
+            let (pen, obj) = self.cand[d][i];
+            if let Some(prev) = after {
+                if obj == NONE || obj <= prev {
+                    continue;
+                }
+            }
+            let ok = match step.kind {
+                StepKind::Jet(_) => (self.used_jets | self.blocked_jets) & (1 << obj) == 0,
+                StepKind::Lepton(..) => {
+                    self.used_leps & (1 << obj) == 0
+                        && step.pair_checks.iter().all(|&(other, k)| {
+                            let o = self.choice[other] as usize;
+                            let l = obj as usize;
+                            hyp.lepton_pairs()[k].allows(
+                                (self.lep_flav[l], self.lep_charge[l]),
+                                (self.lep_flav[o], self.lep_charge[o]),
+                            )
+                        })
+                }
+                StepKind::LargeJet { .. } => {
+                    obj == NONE
+                        || (self.used_large & (1 << obj) == 0
+                            && self.large_overlap[obj as usize] & self.used_jets == 0)
+                }
+                StepKind::Neutrino { .. } => false,
+            };
+            if ok {
+                self.buf[d][n] = (pen, obj);
+                n += 1;
+            }
+        }
+        n
+    }
+
+    #[inline]
+    fn place(&mut self, plan: &Plan, d: usize, obj: u8) -> Saved {
+        let saved = (
+            self.used_jets,
+            self.blocked_jets,
+            self.used_leps,
+            self.used_large,
+        );
+        let step = &plan.steps[d];
+        let role = step.role;
+        self.choice[role] = obj;
+        if obj == NONE {
+            self.role_p4[role] = FourMomentum::ZERO;
+            return saved;
+        }
+        let o = obj as usize;
+        self.role_p4[role] = match step.kind {
+            StepKind::Jet(_) => {
+                self.used_jets |= 1 << o;
+                self.jet_p4[o]
+            }
+            StepKind::Lepton(..) => {
+                self.used_leps |= 1 << o;
+                self.lep_p4[o]
+            }
+            StepKind::Neutrino { lepton } => self
+                .nu
+                .get(self.choice[lepton] as usize)
+                .copied()
+                .flatten()
+                .and_then(|s| s.as_slice().get(o).map(|n| n.p4))
+                .unwrap_or(FourMomentum::ZERO),
+            StepKind::LargeJet { .. } => {
+                self.used_large |= 1 << o;
+                self.blocked_jets |= self.large_overlap[o];
+                self.large_p4[o]
+            }
+        };
+        saved
+    }
+
+    #[inline]
+    fn restore(&mut self, saved: Saved) {
+        (
+            self.used_jets,
+            self.blocked_jets,
+            self.used_leps,
+            self.used_large,
+        ) = saved;
+    }
+
+    /// Completes the composites and constraints of step `d`, returning the
+    /// running χ² (`∞` if a constraint rejects the assignment).
+    #[inline]
+    fn close(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, mut v: f64) -> f64 {
+        let step = &plan.steps[d];
+        for &c in &step.close_comps {
+            let mut p = match plan.comp_whole[c] {
+                Some(w) => self.role_p4[w],
+                None => FourMomentum::ZERO,
+            };
+            for &r in &plan.comp_roles[c] {
+                p += self.role_p4[r];
+            }
+            for &j in &plan.comp_comps[c] {
+                p += self.comp_p4[j];
+            }
+            self.comp_p4[c] = p;
+            self.comp_m[c] = p.m();
+        }
+        let cons = hyp.constraints();
+        for &k in &step.close_cons {
+            let c = &cons[k];
+            if c.only_closest {
+                if let ConstraintKind::Mass { composite, target } = c.kind {
+                    let dev = (self.comp_m[composite] - target).abs();
+                    let lim = self.closest_dev[k];
+                    if dev.is_nan() || dev > lim + 1e-9 * lim.max(1.0) {
+                        return f64::INFINITY;
+                    }
+                }
+            }
+            v += c.chi2(&self.comp_m);
+        }
+        if v.is_nan() {
+            f64::INFINITY
+        } else {
+            v
+        }
+    }
+
+    #[inline]
+    fn threshold(&self) -> f64 {
+        if self.best.len() < self.k {
+            f64::INFINITY
+        } else {
+            self.best[self.k - 1].chi2
+        }
+    }
+
+    /// Whether a partial assignment with running χ² `v` and at least `rest`
+    /// more to come may still reach the K best. Strict: ties survive, so the
+    /// tie-break matches exhaustive enumeration. The running sum only grows
+    /// (adding a non-negative term never rounds down), so `v` alone is an
+    /// exact bound; `rest` is shaved by 1e-12 relative to absorb rounding.
+    #[inline]
+    fn admissible(&self, v: f64, rest: f64) -> bool {
+        if !v.is_finite() {
+            return false;
+        }
+        if !self.prune {
+            return true;
+        }
+        let bound = if rest > 0.0 {
+            v + rest - 1e-12 * (v + rest)
+        } else {
+            v
+        };
+        bound <= self.threshold()
+    }
+
+    fn record(&mut self, v: f64, n_roles: usize) {
+        if !v.is_finite() {
+            return;
+        }
+        let key = &self.choice[..n_roles];
+        let before = |leaf: &Leaf| {
+            v.total_cmp(&leaf.chi2)
+                .then_with(|| key.cmp(&leaf.choice[..n_roles]))
+                == std::cmp::Ordering::Less
+        };
+        if self.best.len() == self.k && !before(&self.best[self.k - 1]) {
+            return;
+        }
+        let pos = self.best.iter().position(before).unwrap_or(self.best.len());
+        if self.best.len() == self.k {
+            self.best.pop();
+        }
+        self.best.insert(
+            pos,
+            Leaf {
+                chi2: v,
+                choice: self.choice,
+            },
+        );
+    }
+
+    fn dfs(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, partial: f64) {
+        let nsteps = plan.steps.len();
+        let last = d + 1 == nsteps;
+        let n = self.gather(hyp, plan, d);
+        let rest = self.rest_min[d + 1];
+        if self.prune && !last && !plan.steps[d].close_cons.is_empty() {
+            // A constraint closes here: score every candidate, then descend
+            // best-first so good incumbents appear early and the rest can be
+            // cut off at once.
+            for i in 0..n {
+                let (pen, obj) = self.buf[d][i];
+                let saved = self.place(plan, d, obj);
+                let v = self.close(hyp, plan, d, partial + pen);
+                self.restore(saved);
+                self.buf[d][i].0 = v;
+            }
+            self.evaluated.partial += n as u64;
+            let list = &mut self.buf[d][..n];
+            for i in 1..n {
+                let mut j = i;
+                while j > 0 && {
+                    let (a, b) = (list[j - 1], list[j]);
+                    a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)) == std::cmp::Ordering::Greater
+                } {
+                    list.swap(j - 1, j);
+                    j -= 1;
+                }
+            }
+            for i in 0..n {
+                let (v, obj) = self.buf[d][i];
+                if !self.admissible(v, rest) {
+                    break;
+                }
+                let saved = self.place(plan, d, obj);
+                self.close(hyp, plan, d, 0.0);
+                self.dfs(hyp, plan, d + 1, v);
+                self.restore(saved);
+            }
+        } else {
+            for i in 0..n {
+                let (pen, obj) = self.buf[d][i];
+                let saved = self.place(plan, d, obj);
+                let v = self.close(hyp, plan, d, partial + pen);
+                if last {
+                    self.evaluated.complete += 1;
+                    self.record(v, hyp.roles().len());
+                } else {
+                    self.evaluated.partial += 1;
+                    if self.admissible(v, rest) {
+                        self.dfs(hyp, plan, d + 1, v);
+                    }
+                }
+                self.restore(saved);
+            }
+        }
+    }
+
+    /// Replays a stored assignment to report its objects, masses and terms.
+    fn build(&mut self, hyp: &Hypothesis, plan: &Plan, leaf: &Leaf) -> RankedAssignment {
+        self.used_jets = 0;
+        self.blocked_jets = 0;
+        self.used_leps = 0;
+        self.used_large = 0;
+        let mut btag_chi2 = 0.0;
+        for (d, step) in plan.steps.iter().enumerate() {
+            let obj = leaf.choice[step.role];
+            if let (StepKind::Jet(tag), false) = (step.kind, obj == NONE) {
+                btag_chi2 += match tag {
+                    TagRule::B => self.pen_b[obj as usize],
+                    TagRule::Light => self.pen_l[obj as usize],
+                    TagRule::Any => 0.0,
+                };
+            }
+            self.place(plan, d, obj);
+            self.close(hyp, plan, d, 0.0);
+        }
+        let roles = hyp.roles();
+        let mut objects = [ObjectRef::Empty; MAX_ROLES];
+        let mut neutrino = None;
+        for (r, role) in roles.iter().enumerate() {
+            let obj = leaf.choice[r];
+            if obj == NONE {
+                continue;
+            }
+            let o = obj as usize;
+            objects[r] = match role.kind {
+                RoleKind::Jet { .. } => ObjectRef::Jet {
+                    pos: self.jet_pos[o],
+                    index: self.jet_index[o],
+                },
+                RoleKind::Lepton { .. } => ObjectRef::Lepton {
+                    flavour: self.lep_flav[o],
+                    pos: self.lep_pos[o],
+                    index: self.lep_index[o],
+                },
+                RoleKind::LargeJet { .. } => ObjectRef::LargeJet {
+                    pos: self.large_pos[o],
+                    index: self.large_index[o],
+                },
+                RoleKind::Neutrino { lepton } => {
+                    neutrino = self
+                        .nu
+                        .get(leaf.choice[lepton] as usize)
+                        .copied()
+                        .flatten()
+                        .and_then(|s| s.as_slice().get(o).copied());
+                    ObjectRef::Neutrino { root: obj }
+                }
+            };
+        }
+        let mut terms = [0.0; MAX_CONSTRAINTS];
+        for (k, c) in hyp.constraints().iter().enumerate() {
+            terms[k] = c.chi2(&self.comp_m);
+        }
+        let mut leaf_masks = [0u16; MAX_COMPOSITES];
+        for (c, comp) in hyp.composites().iter().enumerate() {
+            leaf_masks[c] = comp.leaf_mask;
+        }
+        let mut composite_p4 = [FourMomentum::ZERO; MAX_COMPOSITES];
+        composite_p4[..hyp.composites().len()]
+            .copy_from_slice(&self.comp_p4[..hyp.composites().len()]);
+        RankedAssignment {
+            chi2: leaf.chi2,
+            btag_chi2,
+            n_roles: roles.len() as u8,
+            n_composites: hyp.composites().len() as u8,
+            n_constraints: hyp.constraints().len() as u8,
+            objects,
+            composite_p4,
+            leaf_masks,
+            terms,
+            neutrino,
+        }
+    }
+}
