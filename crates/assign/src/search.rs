@@ -852,6 +852,10 @@ impl Searcher {
         let plan = &self.plan;
         ws.best.clear();
         ws.evaluated = Evaluated::default();
+        ws.used_jets = 0;
+        ws.blocked_jets = 0;
+        ws.used_leps = 0;
+        ws.used_large = 0;
         ws.load_objects(
             event,
             self.leading,

@@ -1,0 +1,339 @@
+//! The branch-and-bound search against an exhaustive enumeration written
+//! independently in `common/mod.rs`, for every preset, on random events; and
+//! robustness on hostile input.
+
+mod common;
+
+use common::{exhaustive, lib_objs, normalise, random_event};
+use proptest::prelude::*;
+use quarry_assign::{presets, search_all, BtagPolicy, SearchConfig, SearchStatus, Searcher};
+use quarry_event::{Event, Jet};
+use quarry_lorentz::FourMomentum;
+
+fn close(a: f64, b: f64) -> bool {
+    (a - b).abs() <= 1e-9 * a.abs().max(b.abs()).max(1.0)
+}
+
+fn check_preset(name: &str, seed: u64, policy: u8, k: usize, max_jets: usize) {
+    let h = presets::get(name).unwrap();
+    let btag = match policy {
+        0 => BtagPolicy::default(),
+        1 => BtagPolicy::weighted_default(),
+        _ => BtagPolicy::Ignore,
+    };
+    let cfg = SearchConfig {
+        k_best: k,
+        btag,
+        ..SearchConfig::default()
+    };
+    let e = random_event(seed, max_jets, 4, 3);
+    let exh = exhaustive(&h, &e, &cfg);
+    let out = Searcher::new(&h, cfg).unwrap().search(&e);
+    if exh.is_empty() {
+        assert_ne!(
+            out.status,
+            SearchStatus::Found,
+            "{name} seed {seed}: found {:?}",
+            out.ranked.first()
+        );
+        assert!(out.ranked.is_empty());
+        return;
+    }
+    assert_eq!(
+        out.status,
+        SearchStatus::Found,
+        "{name} seed {seed}: exhaustive found {}",
+        exh.len()
+    );
+    assert_eq!(out.ranked.len(), k.min(exh.len()), "{name} seed {seed}");
+    for (i, a) in out.ranked.iter().enumerate() {
+        assert!(
+            close(a.chi2(), exh[i].chi2),
+            "{name} seed {seed} rank {i}: search {} vs exhaustive {}",
+            a.chi2(),
+            exh[i].chi2
+        );
+        // The reported objects really have the reported χ².
+        let objs = lib_objs(&h, a);
+        let found = exh.iter().find(|s| normalise(&h, &s.objs) == objs);
+        let s =
+            found.unwrap_or_else(|| panic!("{name} seed {seed}: {objs:?} not a valid assignment"));
+        assert!(close(s.chi2, a.chi2()), "{name} seed {seed}: {objs:?}");
+        // Sum of terms plus b-tag terms is the χ².
+        let sum: f64 = a.terms().iter().sum::<f64>() + a.btag_chi2();
+        assert!(
+            close(sum, a.chi2()),
+            "{name} seed {seed}: terms {sum} vs {}",
+            a.chi2()
+        );
+    }
+    // The best assignment is the exhaustive best unless the two lead tie.
+    let tie = exh.len() > 1 && close(exh[0].chi2, exh[1].chi2);
+    if !tie {
+        assert_eq!(
+            lib_objs(&h, &out.ranked[0]),
+            normalise(&h, &exh[0].objs),
+            "{name} seed {seed}"
+        );
+    }
+    // Distinct assignments.
+    for i in 0..out.ranked.len() {
+        for j in 0..i {
+            assert_ne!(lib_objs(&h, &out.ranked[i]), lib_objs(&h, &out.ranked[j]));
+        }
+    }
+    // Without pruning the search scores every assignment: its count equals
+    // the exhaustive count (only_closest rejections happen at different
+    // stages, so those presets are skipped), and pruning never scores more.
+    let full = Searcher::new(
+        &h,
+        SearchConfig {
+            prune: false,
+            ..cfg
+        },
+    )
+    .unwrap()
+    .search(&e);
+    assert_eq!(
+        full.ranked, out.ranked,
+        "{name} seed {seed}: pruning changed the result"
+    );
+    if !h.constraints().iter().any(|c| c.only_closest) {
+        assert_eq!(
+            full.evaluated.complete,
+            exh.len() as u64,
+            "{name} seed {seed}"
+        );
+    }
+    assert!(out.evaluated.complete <= full.evaluated.complete);
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 24, ..ProptestConfig::default() })]
+
+    #[test]
+    fn ttbar_matches_exhaustive(seed in any::<u64>(), policy in 0u8..3, k in 1usize..6) {
+        check_preset("ttbar-ljets", seed, policy, k, 8);
+    }
+
+    #[test]
+    fn bwbw_matches_exhaustive(seed in any::<u64>(), policy in 0u8..3, k in 1usize..6) {
+        check_preset("bwbw-ljets", seed, policy, k, 8);
+    }
+
+    #[test]
+    fn tz_matches_exhaustive(seed in any::<u64>(), policy in 0u8..3, k in 1usize..6) {
+        check_preset("tz-3l", seed, policy, k, 6);
+    }
+
+    #[test]
+    fn bz_matches_exhaustive(seed in any::<u64>(), policy in 0u8..3, k in 1usize..6) {
+        check_preset("bz-2l", seed, policy, k, 6);
+    }
+
+    #[test]
+    fn tgtg_matches_exhaustive(seed in any::<u64>(), policy in 0u8..3, k in 1usize..6) {
+        check_preset("tgtg-ljets", seed, policy, k, 8);
+    }
+
+    #[test]
+    fn twhad5_matches_exhaustive(seed in any::<u64>(), policy in 0u8..3, k in 1usize..6) {
+        check_preset("tw-had5", seed, policy, k, 8);
+    }
+}
+
+proptest! {
+    // Eight roles among up to nine jets: the enumeration is large, keep few cases.
+    #![proptest_config(ProptestConfig { cases: 10, ..ProptestConfig::default() })]
+
+    #[test]
+    fn twtw_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
+        check_preset("twtw-ljets", seed, policy, k, 9);
+    }
+
+    #[test]
+    fn twtw_boosted_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
+        check_preset("twtw-ljets-boosted", seed, policy, k, 9);
+    }
+}
+
+#[test]
+fn twtw_without_btag_matches_exhaustive_on_fixed_seeds() {
+    for seed in [3, 17] {
+        check_preset("twtw-ljets", seed, 2, 3, 9);
+    }
+}
+
+#[test]
+fn hostile_events_give_statuses_not_panics() {
+    let h = presets::get("ttbar-ljets").unwrap();
+    let mut s = Searcher::new(&h, SearchConfig::default()).unwrap();
+    // Empty event.
+    let out = s.search(&Event::new(0));
+    assert_eq!(
+        out.status,
+        SearchStatus::TooFewJets {
+            needed: 4,
+            available: 0
+        }
+    );
+    // Jets but no lepton.
+    let mut e = random_event(5, 0, 0, 0);
+    for i in 0..6 {
+        e.jets.push(Jet::new(
+            FourMomentum::from_pt_eta_phi_m(50.0 + i as f64, 0.1 * i as f64, i as f64, 5.0),
+            (i % 2) as f64,
+        ));
+    }
+    let out = s.search(&e);
+    assert_eq!(
+        out.status,
+        SearchStatus::TooFewLeptons {
+            needed: 1,
+            available: 0
+        }
+    );
+    // NaN jets are dropped, so only the finite ones count.
+    let mut nan = e.clone();
+    for j in nan.jets.iter_mut().take(3) {
+        j.p4 = FourMomentum::new(f64::NAN, 0.0, 0.0, 1.0);
+    }
+    let out = s.search(&nan);
+    assert_eq!(
+        out.status,
+        SearchStatus::TooFewJets {
+            needed: 4,
+            available: 3
+        }
+    );
+    // A lepton but NaN MET: the neutrino solver fails for every lepton.
+    let mut bad_met = random_event(11, 0, 0, 0);
+    bad_met.jets = e.jets.clone();
+    bad_met.muons.push(quarry_event::Lepton {
+        p4: FourMomentum::from_pt_eta_phi_m(40.0, 0.0, 0.0, quarry_pdg::MUON_MASS),
+        flavour: quarry_event::Flavour::Muon,
+        charge: -1,
+        truth: None,
+        index: 0,
+    });
+    bad_met.met = quarry_event::Met::new(f64::NAN, 1.0);
+    let out = s.search(&bad_met);
+    assert!(
+        matches!(out.status, SearchStatus::NeutrinoFailed(_)),
+        "{:?}",
+        out.status
+    );
+    // b-tag requirements that no jet meets.
+    let mut no_b = bad_met.clone();
+    no_b.met = quarry_event::Met::new(20.0, 10.0);
+    for j in &mut no_b.jets {
+        j.btag = 0.0;
+    }
+    assert_eq!(s.search(&no_b).status, SearchStatus::NoValidAssignment);
+    // Zero-pt and identical jets, and 10 000 jets capped by leading-N.
+    let mut many = no_b.clone();
+    many.jets.clear();
+    for i in 0..10_000u32 {
+        let pt = if i % 7 == 0 {
+            0.0
+        } else {
+            30.0 + f64::from(i % 50)
+        };
+        many.jets.push(
+            Jet::new(
+                FourMomentum::from_pt_eta_phi_m(pt, 0.3, 1.0, 5.0),
+                f64::from((i / 50) % 2),
+            )
+            .with_index(i),
+        );
+    }
+    let out = s.search(&many);
+    assert_eq!(out.status, SearchStatus::Found);
+    // Only the six leading jets (pt 79, ties by input order) may be used.
+    for a in &out.ranked {
+        for pos in a.used_jets() {
+            assert_eq!(many.jets[pos as usize].p4.pt().round(), 79.0);
+            assert!(a.chi2().is_finite());
+        }
+    }
+}
+
+#[test]
+fn search_all_keeps_input_order() {
+    let h = presets::get("bwbw-ljets").unwrap();
+    let events: Vec<Event> = (0..40).map(|i| random_event(1000 + i, 7, 2, 0)).collect();
+    let cfg = SearchConfig::default();
+    let par = search_all(&h, &events, &cfg).unwrap();
+    let mut s = Searcher::new(&h, cfg).unwrap();
+    for (e, p) in events.iter().zip(&par) {
+        assert_eq!(&s.search(e), p);
+    }
+    assert!(par.iter().any(|o| o.status == SearchStatus::Found));
+}
+
+#[test]
+fn bad_configs_are_rejected() {
+    let h = presets::get("ttbar-ljets").unwrap();
+    for cfg in [
+        SearchConfig {
+            k_best: 0,
+            ..SearchConfig::default()
+        },
+        SearchConfig {
+            max_jets_override: Some(2),
+            ..SearchConfig::default()
+        },
+        SearchConfig {
+            max_jets_override: Some(33),
+            ..SearchConfig::default()
+        },
+        SearchConfig {
+            btag: BtagPolicy::Threshold(f64::NAN),
+            ..SearchConfig::default()
+        },
+        SearchConfig {
+            btag: BtagPolicy::Weighted {
+                b_efficiency: 0.01,
+                light_mistag: 0.7,
+            },
+            ..SearchConfig::default()
+        },
+    ] {
+        assert!(Searcher::new(&h, cfg).is_err(), "{cfg:?} accepted");
+    }
+}
+
+/// The random events above must often admit an assignment, or the
+/// comparison would mostly check empty results.
+#[test]
+fn random_events_often_have_assignments() {
+    for (name, max_jets) in [
+        ("ttbar-ljets", 8),
+        ("bwbw-ljets", 8),
+        ("tz-3l", 6),
+        ("bz-2l", 6),
+        ("tgtg-ljets", 8),
+        ("tw-had5", 8),
+        ("twtw-ljets", 9),
+        ("twtw-ljets-boosted", 9),
+    ] {
+        let h = presets::get(name).unwrap();
+        let mut s = Searcher::new(
+            &h,
+            SearchConfig {
+                btag: BtagPolicy::weighted_default(),
+                ..SearchConfig::default()
+            },
+        )
+        .unwrap();
+        let found = (0..60)
+            .filter(|&i| {
+                s.search(&random_event(7000 + i, max_jets, 4, 3)).status == SearchStatus::Found
+            })
+            .count();
+        assert!(
+            found >= 12,
+            "{name}: only {found} of 60 random events have an assignment"
+        );
+    }
+}
