@@ -4,7 +4,7 @@
 
 mod common;
 
-use common::{exhaustive, lib_objs, normalise, random_event};
+use common::{exhaustive, lib_objs, normalise, random_event, random_event_with};
 use proptest::prelude::*;
 use quarry_assign::{presets, search_all, BtagPolicy, SearchConfig, SearchStatus, Searcher};
 use quarry_event::{Event, Jet};
@@ -26,7 +26,8 @@ fn check_preset(name: &str, seed: u64, policy: u8, k: usize, max_jets: usize) {
         btag,
         ..SearchConfig::default()
     };
-    let e = random_event(seed, max_jets, 4, 3);
+    let min_jets = if max_jets >= 9 { 7 } else { 0 };
+    let e = random_event_with(seed, min_jets, max_jets, 4, 3);
     let exh = exhaustive(&h, &e, &cfg);
     let out = Searcher::new(&h, cfg).unwrap().search(&e);
     if exh.is_empty() {
@@ -328,7 +329,9 @@ fn random_events_often_have_assignments() {
         .unwrap();
         let found = (0..60)
             .filter(|&i| {
-                s.search(&random_event(7000 + i, max_jets, 4, 3)).status == SearchStatus::Found
+                let min_jets = if max_jets >= 9 { 7 } else { 0 };
+                let e = random_event_with(7000 + i, min_jets, max_jets, 4, 3);
+                s.search(&e).status == SearchStatus::Found
             })
             .count();
         assert!(

@@ -441,9 +441,20 @@ fn pair_ok(flavour: Relation, charge: Relation, a: LepInfo, b: LepInfo) -> bool 
 /// large jets 30–220 GeV mass, and MET. Sometimes duplicates a jet exactly
 /// to exercise ties.
 pub fn random_event(seed: u64, max_jets: usize, max_leptons: usize, max_large: usize) -> Event {
+    random_event_with(seed, 0, max_jets, max_leptons, max_large)
+}
+
+/// As [`random_event`] with at least `min_jets` jets.
+pub fn random_event_with(
+    seed: u64,
+    min_jets: usize,
+    max_jets: usize,
+    max_leptons: usize,
+    max_large: usize,
+) -> Event {
     let mut rng = Pcg64::seed_from_u64(seed);
     let mut e = Event::new(seed);
-    let nj = rng.random_range(0..=max_jets);
+    let nj = rng.random_range(min_jets.min(max_jets)..=max_jets);
     let binary = rng.random_bool(0.3);
     for i in 0..nj {
         let p4 = FourMomentum::from_pt_eta_phi_m(
