@@ -135,7 +135,7 @@ pub enum SolutionCase {
 
 /// One neutrino solution.
 ///
-/// Invariants: `p4` is massless (`E = |p⃗|`) and finite; `met_shift ≥ 0`, and
+/// Invariants: `p4` is massless (`E = |p⃗|` up to rounding) and finite; `met_shift ≥ 0`, and
 /// it is 0 unless `case` is [`SolutionCase::AdjustedMet`], where it is the
 /// length of the change applied to the MET vector.
 ///
@@ -371,10 +371,10 @@ impl WMassSolver {
         if e <= 0.0 {
             return Err(NeutrinoError::UnphysicalLepton);
         }
-        let lepton_m2 = lepton.m2();
         // Lepton transverse mass squared, in the form that keeps precision
-        // for |pz| ≈ E.
+        // for |pz| ≈ E; the mass² follows from it without a square root.
         let a = (e - lz) * (e + lz);
+        let lepton_m2 = a - (lx * lx + ly * ly);
         if !(lepton_m2.is_finite() && a.is_finite()) {
             return Err(NeutrinoError::Overflow);
         }
@@ -418,8 +418,14 @@ impl WMassSolver {
                 let c = e * e * pt2 - mu * mu;
                 (c / q, q / a)
             };
-            let nu_small = massless(met_px, met_py, small, SolutionCase::Real, 0.0)?;
-            let nu_large = massless(met_px, met_py, large, SolutionCase::Real, 0.0)?;
+            // E_ν from the unsquared constraint E·E_ν = μ + pz_ℓ·z: one shared
+            // division instead of two square roots, and free of cancellation
+            // (|pz_ℓ z| ≤ E E_ν, so μ ≤ 2 E E_ν).
+            let inv_e = 1.0 / e;
+            let e_small = (mu + lz * small) * inv_e;
+            let e_large = (mu + lz * large) * inv_e;
+            let nu_small = with_energy(met_px, met_py, small, e_small)?;
+            let nu_large = with_energy(met_px, met_py, large, e_large)?;
             // |q/a| ≥ |c/q| by construction; a tie in magnitude keeps this order.
             return Ok(NeutrinoSolutions::two(nu_small, nu_large));
         }
@@ -444,6 +450,20 @@ impl WMassSolver {
             }
         }
     }
+}
+
+/// A real-case neutrino with its energy already known, or `Overflow` if any
+/// component is not finite.
+#[inline]
+fn with_energy(px: f64, py: f64, pz: f64, e: f64) -> Result<Neutrino, NeutrinoError> {
+    if !(e.is_finite() && pz.is_finite()) {
+        return Err(NeutrinoError::Overflow);
+    }
+    Ok(Neutrino {
+        p4: FourMomentum::new(px, py, pz, e),
+        case: SolutionCase::Real,
+        met_shift: 0.0,
+    })
 }
 
 /// A massless neutrino, or `Overflow` if any component is not finite.
