@@ -1,1 +1,97 @@
-//! Placeholder: this crate's issue has not landed yet.
+//! Constrained kinematic fit of one jet/lepton/neutrino assignment, built on
+//! `argmin`.
+//!
+//! Given the objects an assignment search chose (jets, charged leptons, a
+//! neutrino start and the MET), the fit moves their energies within the
+//! detector resolutions so that the hypothesis' composites get the masses it
+//! demands (W masses, top masses, equal masses of a pair-produced quark
+//! pair), and reports how well that worked (χ², χ² probability) together
+//! with the improved four-vectors and masses.
+//!
+//! **Design decision:** the fit problem is a plain struct, [`KinematicChi2`],
+//! implementing argmin's `CostFunction`, `Gradient` and `Hessian` with
+//! analytic derivatives, and every per-fit value is an inline, fixed-capacity
+//! `Copy` type ([`FitInput`], [`FitResult`], a 16-entry parameter vector), so
+//! the fit runs thousands of times per event batch without heap traffic and
+//! without knowing anything about hypotheses: the pipeline converts a search
+//! result into a [`FitInput`].
+//!
+//! # The χ² (see [`KinematicChi2`] for the exact formula)
+//! - **Measured quantities**: each jet's energy (σ(E) from the calorimeter
+//!   model of `quarry-resolution`, per |η| bin) and each lepton's pt (σ(pt));
+//!   the fitted object is `s · p_measured`, i.e. only the magnitude moves.
+//!   Directions are fixed: jet and lepton angular resolutions (~0.01–0.05 in
+//!   η, φ) are much better than the energy resolution (~10 % for jets), so
+//!   fitting them adds parameters that barely move (common practice).
+//! - **Neutrino**: px, py, pz are free parameters. Its transverse momentum is
+//!   *measured* by MET with a χ² term (p_T,ν − MET)ᵀ V⁻¹ (p_T,ν − MET), V the
+//!   MET covariance (the event's own, else the resolution model's). This
+//!   treats MET as an independent measurement of p_T,ν: the unclustered
+//!   recoil and the correlation of MET with the fitted jet energies are not
+//!   modelled (a simple, consistent, common choice). pz is unmeasured.
+//! - **Constraints**: `Mass` (m = M) and `EqualMass` (m_a = m_b = M, M free).
+//!   In [`ConstraintMode::Soft`] each is a Gaussian term with the given width
+//!   (e.g. the PDG width from `quarry_pdg`); in [`ConstraintMode::Hard`] they
+//!   hold to better than [`FitConfig::hard_tolerance`] (default 1 MeV).
+//!   Residuals are written c = (m² − M²)/(2M) — equal to m − M to first order
+//!   and polynomial in the parameters, so m² < 0 needs no special guard.
+//!
+//! # Method
+//! 1. Parameters: log-scale factors for object magnitudes (so energies stay
+//!    positive), neutrino (px, py, pz), common masses; all scaled to σ units.
+//! 2. Minimiser: argmin's `TrustRegion` with a textbook dogleg subproblem
+//!    (argmin's own dogleg can stall; see `dogleg.rs`) on the exact analytic
+//!    Hessian (shifted by µ·I only where it is not
+//!    positive definite, see [`HessianMatrix`]), stopped when the Newton
+//!    decrement gᵀH⁻¹g < 1e-10.
+//! 3. Hard constraints: augmented Lagrangian χ² + Σ (2λ c + ρ c²), starting
+//!    from the soft fit (ρ = 1/width²), then λ ← λ + ρc, ρ ← 10ρ, until every
+//!    |m − M| < tolerance (usually 2–4 passes, each warm-started).
+//! 4. Uncertainties: soft mode C = 2H⁻¹ (Δχ² = 1); hard mode the linearised
+//!    constrained covariance of the bordered (Lagrange) matrix, as in P. Avery,
+//!    "Applied Fitting Theory VI: Formulas for Kinematic Fitting", CLEO CBX
+//!    98-37. The common mass's σ is √C_MM.
+//! 5. ndf = constraint equations − unmeasured parameters ([`FitInput::ndf`]);
+//!    probability from [`chi2_survival`].
+//!
+//! Limits: one neutrino at most; at most [`MAX_OBJECTS`] objects; resolutions
+//! are evaluated at the measured values and are Gaussian; no
+//! MET–jet correlation; the fit finds the local minimum near its start (run it
+//! once per neutrino pz solution if both matter).
+//!
+//! ```
+//! use quarry_fit::{Composite, Constraint, FitInput, KinematicFitter, Measured, NeutrinoStart};
+//! use quarry_lorentz::FourMomentum;
+//! // W → ℓν with a measured lepton and MET: pz is solved by the W mass.
+//! let mut input = FitInput::new();
+//! let lep = input.add_object(Measured::muon(FourMomentum::from_pt_eta_phi_m(40.0, 0.3, 0.0, 0.0))).unwrap();
+//! input.set_neutrino(NeutrinoStart { p3: [-35.0, 5.0, 0.0], met: [-35.0, 5.0], met_cov: [100.0, 0.0, 100.0] }).unwrap();
+//! let w = input.add_composite(Composite::of(&[lep], true)).unwrap();
+//! input.add_constraint(Constraint::w_mass(w)).unwrap();
+//! let mut fitter = KinematicFitter::default();
+//! let r = fitter.fit(&input);
+//! assert_eq!(r.ndf, 0);
+//! assert!(r.converged() && r.chi2 < 1e-6);
+//! assert!((r.composite_masses()[0] - quarry_pdg::W_MASS).abs() < 0.01);
+//! ```
+#![deny(missing_docs)]
+// Dense small-matrix code indexes several arrays with one index; iterator
+// chains would hide the formulas.
+#![allow(clippy::needless_range_loop)]
+
+mod dogleg;
+mod fitter;
+mod input;
+mod problem;
+pub mod stats;
+
+pub use fitter::{
+    compare_fits, rank_by_chi2, CommonMass, ConstraintMode, FitConfig, FitResult, FitStatus,
+    KinematicFitter,
+};
+pub use input::{
+    Composite, Constraint, FitInput, FitInputError, Measured, MeasuredKind, NeutrinoStart,
+    MAX_COMMON_MASSES, MAX_COMPOSITES, MAX_CONSTRAINTS, MAX_OBJECTS, MAX_PARAMS,
+};
+pub use problem::{HessianMatrix, KinematicChi2, Params, MAX_TERMS, NEUTRINO_MASS2_REGULATOR};
+pub use stats::chi2_survival;

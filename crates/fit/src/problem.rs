@@ -1,0 +1,841 @@
+//! The χ² as an argmin problem: [`KinematicChi2`] implements `CostFunction`,
+//! `Gradient` and `Hessian` with analytic derivatives.
+
+use std::cell::RefCell;
+use std::ops::Index;
+use std::sync::Arc;
+
+use argmin::core::{CostFunction, Error, Gradient, Hessian};
+use argmin_math::{ArgminDot, ArgminInv};
+use nalgebra::{SMatrix, SVector};
+use quarry_lorentz::FourMomentum;
+use quarry_resolution::ResolutionModel;
+
+use crate::input::{
+    Composite, Constraint, FitInput, FitInputError, MeasuredKind, MAX_COMMON_MASSES,
+    MAX_COMPOSITES, MAX_CONSTRAINTS, MAX_OBJECTS, MAX_PARAMS,
+};
+use quarry_event::Flavour;
+
+/// The fit's parameter vector (internal, dimensionless units; see
+/// [`KinematicChi2`]). Entries past [`KinematicChi2::n_params`] are padding.
+pub type Params = SVector<f64, MAX_PARAMS>;
+/// The (model) Hessian of the cost with respect to [`Params`], as handed
+/// to argmin's trust region: the exact analytic Hessian, plus µ·I only where
+/// that is needed to make it positive definite (away from the minimum; at a
+/// minimum the exact Hessian is positive definite and µ = 0, so Newton's
+/// quadratic convergence is kept). It carries its Cholesky factor, so the
+/// dogleg step's `inv()` is a cheap view and `inv().dot(g)` two triangular
+/// solves. Shared behind an `Arc`: argmin moves its iteration state, which
+/// holds several Hessians, by value every iteration.
+///
+/// ```
+/// use quarry_fit::HessianMatrix;
+/// let h = HessianMatrix::new(nalgebra::SMatrix::identity() * 2.0, 3);
+/// assert_eq!(h[(2, 2)], 2.0);
+/// assert_eq!(h.shift(), 0.0);
+/// ```
+#[derive(Clone, Debug, PartialEq)]
+pub struct HessianMatrix {
+    data: Arc<HessianData>,
+    inverse: bool,
+}
+
+#[derive(Debug, PartialEq)]
+struct HessianData {
+    h: SMatrix<f64, MAX_PARAMS, MAX_PARAMS>,
+    /// Lower Cholesky factor of the leading n×n block (row-major).
+    chol: [[f64; MAX_PARAMS]; MAX_PARAMS],
+    n: usize,
+    shift: f64,
+}
+
+impl HessianMatrix {
+    /// From a symmetric matrix whose leading `n`×`n` block is the Hessian
+    /// (the rest is padding and should be the identity). Adds the smallest
+    /// µ·I of the form 0 or 1e-8·2^k·max|H_ii| that makes the block
+    /// positive definite.
+    pub fn new(mut h: SMatrix<f64, MAX_PARAMS, MAX_PARAMS>, n: usize) -> Self {
+        let n = n.min(MAX_PARAMS);
+        let scale = (0..n).map(|i| h[(i, i)].abs()).fold(1e-12, f64::max);
+        let mut shift = 0.0;
+        let mut chol = [[0.0; MAX_PARAMS]; MAX_PARAMS];
+        for attempt in 0..80 {
+            if cholesky(&h, n, shift, &mut chol) {
+                break;
+            }
+            shift = scale * 1e-8 * 2f64.powi(attempt);
+        }
+        for i in 0..n {
+            h[(i, i)] += shift;
+        }
+        HessianMatrix {
+            data: Arc::new(HessianData { h, chol, n, shift }),
+            inverse: false,
+        }
+    }
+    /// The matrix (with the shift applied).
+    pub fn matrix(&self) -> &SMatrix<f64, MAX_PARAMS, MAX_PARAMS> {
+        &self.data.h
+    }
+    /// The µ added to the diagonal (0 if the exact Hessian was positive
+    /// definite).
+    pub fn shift(&self) -> f64 {
+        self.data.shift
+    }
+}
+
+/// Cholesky of the leading n×n block of h + shift·I into `l`; false if not
+/// positive definite (or not finite).
+fn cholesky(
+    h: &SMatrix<f64, MAX_PARAMS, MAX_PARAMS>,
+    n: usize,
+    shift: f64,
+    l: &mut [[f64; MAX_PARAMS]; MAX_PARAMS],
+) -> bool {
+    for j in 0..n {
+        let mut d = h[(j, j)] + shift;
+        for k in 0..j {
+            d -= l[j][k] * l[j][k];
+        }
+        if !(d > 0.0 && d.is_finite()) {
+            return false;
+        }
+        let djj = d.sqrt();
+        l[j][j] = djj;
+        for i in j + 1..n {
+            let mut v = h[(i, j)];
+            for k in 0..j {
+                v -= l[i][k] * l[j][k];
+            }
+            l[i][j] = v / djj;
+        }
+    }
+    true
+}
+
+impl Index<(usize, usize)> for HessianMatrix {
+    type Output = f64;
+    fn index(&self, ij: (usize, usize)) -> &f64 {
+        &self.data.h[ij]
+    }
+}
+
+impl ArgminDot<Params, Params> for HessianMatrix {
+    /// H·v, or H⁻¹·v for the view returned by `inv()`.
+    fn dot(&self, v: &Params) -> Params {
+        if !self.inverse {
+            return self.data.h * v;
+        }
+        let d = &self.data;
+        let l = &d.chol;
+        let mut x = *v; // padding entries: identity
+        for i in 0..d.n {
+            let mut s = x[i];
+            for k in 0..i {
+                s -= l[i][k] * x[k];
+            }
+            x[i] = s / l[i][i];
+        }
+        for i in (0..d.n).rev() {
+            let mut s = x[i];
+            for k in i + 1..d.n {
+                s -= l[k][i] * x[k];
+            }
+            x[i] = s / l[i][i];
+        }
+        x
+    }
+}
+
+impl ArgminInv<HessianMatrix> for HessianMatrix {
+    /// A view that applies H⁻¹ through the stored Cholesky factor.
+    fn inv(&self) -> Result<HessianMatrix, argmin_math::Error> {
+        Ok(HessianMatrix {
+            data: Arc::clone(&self.data),
+            inverse: !self.inverse,
+        })
+    }
+}
+
+/// Most constraint terms: a `Mass` constraint gives one, an `EqualMass` two.
+pub const MAX_TERMS: usize = 2 * MAX_CONSTRAINTS;
+
+/// Neutrino mass² [GeV²] used in E_ν = sqrt(|p|² + ε²): a regulator that
+/// keeps E_ν differentiable at p = 0, far below any resolution.
+pub const NEUTRINO_MASS2_REGULATOR: f64 = 1e-12;
+
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum Target {
+    Fixed(f64),
+    Common(usize),
+}
+
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Term {
+    composite: usize,
+    target: Target,
+    width: f64,
+    linear: f64,
+    quadratic: f64,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct NeutrinoData {
+    start: [f64; 3],
+    met: [f64; 2],
+    /// Inverse MET covariance [xx, xy, yy].
+    vinv: [f64; 3],
+    scale: [f64; 3],
+}
+
+#[derive(Clone, Debug)]
+struct Cache {
+    x: Params,
+    h: HessianMatrix,
+}
+
+/// Value and derivatives of the cost in physical parameters θ.
+pub(crate) struct PhysicalEval {
+    pub f: f64,
+    pub g: [f64; MAX_PARAMS],
+    pub h: [[f64; MAX_PARAMS]; MAX_PARAMS],
+}
+
+/// The kinematic-fit χ² for one [`FitInput`], as an argmin problem.
+///
+/// **Physical parameters θ** (in this order): one scale factor `s_i` per
+/// measured object (the fitted four-momentum is `s_i · p_i,measured`, so the
+/// direction is fixed and E, pt and m scale together), the neutrino's
+/// `(px, py, pz)` if there is one, and one common mass `M_k` per
+/// [`Constraint::EqualMass`].
+///
+/// **Cost** (c_t in GeV, one term t per `Mass` constraint and two per
+/// `EqualMass`):
+///
+/// ```text
+/// f = Σ_i ((s_i − 1)/r_i)²  +  dᵀ V⁻¹ d  +  Σ_t (a_t c_t + b_t c_t²)
+/// r_i = σ_i / x_i,meas      (jets: σ(E)/E; leptons: σ(pt)/pt, at the measured value)
+/// d   = (px_ν − MET_x, py_ν − MET_y),  V = MET covariance
+/// c_t = (m_t² − M_t²) / (2 M_t)   (= m_t − M_t to first order; a polynomial
+///                                   in the parameters, so no guard for m² < 0)
+/// ```
+///
+/// with `a_t = 0, b_t = 1/width_t²` by default (soft mode: Gaussian terms);
+/// the hard mode's augmented Lagrangian sets `a_t = 2λ_t, b_t = ρ_t` through
+/// [`set_term_weights`](Self::set_term_weights).
+///
+/// **Internal parameters x** (what argmin sees) are θ scaled to O(1) so the
+/// trust region is round: `s_i = exp(r_i x_i)` (positive for every x),
+/// `p_ν = p_ν,start + σ_ν ⊙ x` with σ_ν = (√V_xx, √V_yy, √(V_xx+V_yy)), and
+/// `M_k = M_k,start + width_k x` (cost +∞ for M ≤ 0). `x = 0` is the start.
+///
+/// ```
+/// use argmin::core::CostFunction;
+/// use quarry_fit::{Composite, Constraint, FitInput, KinematicChi2, Measured, Params};
+/// use quarry_lorentz::FourMomentum;
+/// let mut input = FitInput::new();
+/// input.add_object(Measured::jet(FourMomentum::from_pt_eta_phi_m(45.0, 0.2, 0.3, 0.0))).unwrap();
+/// input.add_object(Measured::jet(FourMomentum::from_pt_eta_phi_m(40.0, -0.4, 1.9, 0.0))).unwrap();
+/// let w = input.add_composite(Composite::of(&[0, 1], false)).unwrap();
+/// input.add_constraint(Constraint::w_mass(w)).unwrap();
+/// let problem = KinematicChi2::new(&input, &Default::default()).unwrap();
+/// assert_eq!(problem.n_params(), 2);
+/// assert!(problem.cost(&Params::zeros()).unwrap() > 0.0);
+/// ```
+#[derive(Clone, Debug)]
+pub struct KinematicChi2(Box<Chi2Data>);
+
+/// The problem's data, boxed: argmin moves the problem into and out of
+/// nested executors every iteration, so the problem itself is one pointer.
+#[derive(Clone, Debug)]
+struct Chi2Data {
+    n_objects: usize,
+    measured: [FourMomentum; MAX_OBJECTS],
+    rel_sigma: [f64; MAX_OBJECTS],
+    neutrino: Option<NeutrinoData>,
+    composites: [Composite; MAX_COMPOSITES],
+    n_composites: usize,
+    terms: [Term; MAX_TERMS],
+    n_terms: usize,
+    common_start: [f64; MAX_COMMON_MASSES],
+    common_scale: [f64; MAX_COMMON_MASSES],
+    n_common: usize,
+    n_params: usize,
+    cache: RefCell<Option<Cache>>,
+}
+
+impl KinematicChi2 {
+    /// Builds the problem (soft weights) from a validated input and the
+    /// resolution model.
+    pub fn new(input: &FitInput, model: &ResolutionModel) -> Result<Self, FitInputError> {
+        input.validate()?;
+        let n_objects = input.objects().len();
+        let mut measured = [FourMomentum::ZERO; MAX_OBJECTS];
+        let mut rel_sigma = [1.0; MAX_OBJECTS];
+        for (i, o) in input.objects().iter().enumerate() {
+            measured[i] = o.p4;
+            rel_sigma[i] = match o.kind {
+                MeasuredKind::Jet => model.jet_energy_sigma(o.p4.e(), o.p4.eta()) / o.p4.e(),
+                MeasuredKind::Electron => {
+                    model.lepton_pt_sigma(Flavour::Electron, o.p4.pt()) / o.p4.pt()
+                }
+                MeasuredKind::Muon => model.lepton_pt_sigma(Flavour::Muon, o.p4.pt()) / o.p4.pt(),
+            };
+            if !(rel_sigma[i].is_finite() && rel_sigma[i] > 0.0) {
+                return Err(FitInputError::NonFinite("object resolution"));
+            }
+        }
+        let neutrino = input.neutrino().map(|n| {
+            let [xx, xy, yy] = n.met_cov;
+            let det = xx * yy - xy * xy;
+            NeutrinoData {
+                start: n.p3,
+                met: n.met,
+                vinv: [yy / det, -xy / det, xx / det],
+                scale: [xx.sqrt(), yy.sqrt(), (xx + yy).sqrt()],
+            }
+        });
+        let mut composites = [Composite::new(); MAX_COMPOSITES];
+        composites[..input.composites().len()].copy_from_slice(input.composites());
+        let mut problem = KinematicChi2(Box::new(Chi2Data {
+            n_objects,
+            measured,
+            rel_sigma,
+            neutrino,
+            composites,
+            n_composites: input.composites().len(),
+            terms: [Term {
+                composite: 0,
+                target: Target::Fixed(1.0),
+                width: 1.0,
+                linear: 0.0,
+                quadratic: 0.0,
+            }; MAX_TERMS],
+            n_terms: 0,
+            common_start: [0.0; MAX_COMMON_MASSES],
+            common_scale: [1.0; MAX_COMMON_MASSES],
+            n_common: 0,
+            n_params: n_objects + if neutrino.is_some() { 3 } else { 0 },
+            cache: RefCell::new(None),
+        }));
+        let start_masses = problem.composite_masses(&Params::zeros());
+        let push = |p: &mut KinematicChi2, composite, target, width: f64| {
+            let t = p.0.n_terms;
+            p.0.terms[t] = Term {
+                composite,
+                target,
+                width,
+                linear: 0.0,
+                quadratic: 1.0 / (width * width),
+            };
+            p.0.n_terms += 1;
+        };
+        for c in input.constraints() {
+            match *c {
+                Constraint::Mass {
+                    composite,
+                    mass,
+                    width,
+                } => push(&mut problem, composite, Target::Fixed(mass), width),
+                Constraint::EqualMass { a, b, width } => {
+                    let k = problem.0.n_common;
+                    // Start at the mean of the two starting masses (≥ 1 GeV).
+                    problem.0.common_start[k] =
+                        (0.5 * (start_masses[a] + start_masses[b])).max(1.0);
+                    problem.0.common_scale[k] = width;
+                    problem.0.n_common += 1;
+                    problem.0.n_params += 1;
+                    push(&mut problem, a, Target::Common(k), width);
+                    push(&mut problem, b, Target::Common(k), width);
+                }
+            }
+        }
+        Ok(problem)
+    }
+
+    /// Number of used entries of the parameter vector.
+    pub fn n_params(&self) -> usize {
+        self.0.n_params
+    }
+
+    /// Number of constraint terms (one per `Mass`, two per `EqualMass`, in
+    /// constraint order).
+    pub fn n_terms(&self) -> usize {
+        self.0.n_terms
+    }
+
+    /// Relative resolution r_i = σ_i / x_i of object `i` (σ(E)/E for jets,
+    /// σ(pt)/pt for leptons), evaluated at the measured value.
+    pub fn relative_sigma(&self, i: usize) -> f64 {
+        self.0.rel_sigma[i]
+    }
+
+    /// Sets term `t`'s weights in `a_t c_t + b_t c_t²` (see the type docs).
+    /// Soft mode is `(0, 1/width²)`; the hard mode's augmented Lagrangian
+    /// uses `(2λ_t, ρ_t)`. Non-finite values are ignored.
+    pub fn set_term_weights(&mut self, t: usize, linear: f64, quadratic: f64) {
+        if t < self.0.n_terms && linear.is_finite() && quadratic.is_finite() {
+            self.0.terms[t].linear = linear;
+            self.0.terms[t].quadratic = quadratic;
+            *self.0.cache.get_mut() = None;
+        }
+    }
+
+    /// Restores the soft-mode weights `(0, 1/width²)` on every term.
+    pub fn set_soft_weights(&mut self) {
+        for t in 0..self.0.n_terms {
+            let w = self.0.terms[t].width;
+            self.set_term_weights(t, 0.0, 1.0 / (w * w));
+        }
+    }
+
+    /// Width of term `t` [GeV].
+    pub(crate) fn term_width(&self, t: usize) -> f64 {
+        self.0.terms[t].width
+    }
+
+    /// Physical parameters θ for internal parameters `x` (same layout).
+    pub fn to_physical(&self, x: &Params) -> [f64; MAX_PARAMS] {
+        let mut th = [0.0; MAX_PARAMS];
+        for i in 0..self.0.n_objects {
+            th[i] = (self.0.rel_sigma[i] * x[i]).exp();
+        }
+        let mut k = self.0.n_objects;
+        if let Some(nu) = &self.0.neutrino {
+            for a in 0..3 {
+                th[k + a] = nu.start[a] + nu.scale[a] * x[k + a];
+            }
+            k += 3;
+        }
+        for c in 0..self.0.n_common {
+            th[k + c] = self.0.common_start[c] + self.0.common_scale[c] * x[k + c];
+        }
+        th
+    }
+
+    /// dθ/dx and d²θ/dx² per parameter (the map is separable).
+    fn jacobian(&self, th: &[f64; MAX_PARAMS]) -> ([f64; MAX_PARAMS], [f64; MAX_PARAMS]) {
+        let mut d1 = [0.0; MAX_PARAMS];
+        let mut d2 = [0.0; MAX_PARAMS];
+        for i in 0..self.0.n_objects {
+            let r = self.0.rel_sigma[i];
+            d1[i] = r * th[i];
+            d2[i] = r * r * th[i];
+        }
+        let mut k = self.0.n_objects;
+        if let Some(nu) = &self.0.neutrino {
+            d1[k..k + 3].copy_from_slice(&nu.scale);
+            k += 3;
+        }
+        d1[k..k + self.0.n_common].copy_from_slice(&self.0.common_scale[..self.0.n_common]);
+        (d1, d2)
+    }
+
+    /// Index of the neutrino's px in θ, if any.
+    pub(crate) fn neutrino_index(&self) -> Option<usize> {
+        self.0.neutrino.map(|_| self.0.n_objects)
+    }
+
+    /// Index of common mass `k` in θ.
+    pub(crate) fn common_index(&self, k: usize) -> usize {
+        self.0.n_objects + if self.0.neutrino.is_some() { 3 } else { 0 } + k
+    }
+
+    /// Number of common masses.
+    pub(crate) fn n_common(&self) -> usize {
+        self.0.n_common
+    }
+
+    /// Number of objects.
+    pub(crate) fn n_objects(&self) -> usize {
+        self.0.n_objects
+    }
+
+    /// Fitted four-momenta of the objects and the neutrino at θ.
+    pub(crate) fn four_momenta(
+        &self,
+        th: &[f64; MAX_PARAMS],
+    ) -> ([FourMomentum; MAX_OBJECTS], Option<FourMomentum>) {
+        let mut p = [FourMomentum::ZERO; MAX_OBJECTS];
+        for i in 0..self.0.n_objects {
+            p[i] = self.0.measured[i] * th[i];
+        }
+        let nu = self
+            .neutrino_index()
+            .map(|k| neutrino_p4(th[k], th[k + 1], th[k + 2]));
+        (p, nu)
+    }
+
+    fn composite_sums(&self, th: &[f64; MAX_PARAMS]) -> [FourMomentum; MAX_COMPOSITES] {
+        let (p, nu) = self.four_momenta(th);
+        let mut sums = [FourMomentum::ZERO; MAX_COMPOSITES];
+        for (c, sum) in self.0.composites[..self.0.n_composites]
+            .iter()
+            .zip(sums.iter_mut())
+        {
+            let mut mask = c.object_mask();
+            while mask != 0 {
+                let i = mask.trailing_zeros() as usize;
+                mask &= mask - 1;
+                *sum += p[i];
+            }
+            if c.contains_neutrino() {
+                if let Some(nu) = nu {
+                    *sum += nu;
+                }
+            }
+        }
+        sums
+    }
+
+    /// Masses of all composites [GeV] at internal parameters `x` (m² < 0
+    /// gives −√(−m²), as `FourMomentum::m`).
+    pub fn composite_masses(&self, x: &Params) -> [f64; MAX_COMPOSITES] {
+        let th = self.to_physical(x);
+        let sums = self.composite_sums(&th);
+        let mut m = [0.0; MAX_COMPOSITES];
+        for c in 0..self.0.n_composites {
+            m[c] = signed_sqrt(sums[c].dot(&sums[c]));
+        }
+        m
+    }
+
+    /// Largest |m_t − M_t| over all constraint terms [GeV] at θ.
+    pub(crate) fn max_violation(&self, th: &[f64; MAX_PARAMS]) -> f64 {
+        let sums = self.composite_sums(th);
+        let mut worst: f64 = 0.0;
+        for t in &self.0.terms[..self.0.n_terms] {
+            let m = signed_sqrt(sums[t.composite].dot(&sums[t.composite]));
+            let target = self.target_mass(t, th);
+            worst = worst.max((m - target).abs());
+        }
+        worst
+    }
+
+    /// Constraint residuals c_t [GeV] at θ.
+    pub(crate) fn residuals(&self, th: &[f64; MAX_PARAMS]) -> [f64; MAX_TERMS] {
+        let sums = self.composite_sums(th);
+        let mut c = [0.0; MAX_TERMS];
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
+            let m2 = sums[term.composite].dot(&sums[term.composite]);
+            let mt = self.target_mass(term, th);
+            c[t] = (m2 - mt * mt) / (2.0 * mt);
+        }
+        c
+    }
+
+    fn target_mass(&self, t: &Term, th: &[f64; MAX_PARAMS]) -> f64 {
+        match t.target {
+            Target::Fixed(m) => m,
+            Target::Common(k) => th[self.common_index(k)],
+        }
+    }
+
+    /// The measurement part of χ² at θ (objects and MET only).
+    pub(crate) fn measurement_chi2(&self, th: &[f64; MAX_PARAMS]) -> f64 {
+        let mut f = 0.0;
+        for i in 0..self.0.n_objects {
+            let d = (th[i] - 1.0) / self.0.rel_sigma[i];
+            f += d * d;
+        }
+        if let (Some(nu), Some(k)) = (&self.0.neutrino, self.neutrino_index()) {
+            let dx = th[k] - nu.met[0];
+            let dy = th[k + 1] - nu.met[1];
+            f += dx * dx * nu.vinv[0] + 2.0 * dx * dy * nu.vinv[1] + dy * dy * nu.vinv[2];
+        }
+        f
+    }
+
+    /// Half the Hessian of the measurement χ² in θ, i.e. the weight matrix
+    /// V⁻¹ of the measured parameters (zero rows for pz and common masses).
+    pub(crate) fn measurement_weight(&self) -> [[f64; MAX_PARAMS]; MAX_PARAMS] {
+        let mut w = [[0.0; MAX_PARAMS]; MAX_PARAMS];
+        for (i, row) in w.iter_mut().enumerate().take(self.0.n_objects) {
+            row[i] = 1.0 / (self.0.rel_sigma[i] * self.0.rel_sigma[i]);
+        }
+        if let (Some(nu), Some(k)) = (&self.0.neutrino, self.neutrino_index()) {
+            w[k][k] = nu.vinv[0];
+            w[k][k + 1] = nu.vinv[1];
+            w[k + 1][k] = nu.vinv[1];
+            w[k + 1][k + 1] = nu.vinv[2];
+        }
+        w
+    }
+
+    /// Gradients ∇_θ c_t of all constraint residuals at θ (rows t).
+    pub(crate) fn residual_gradients(
+        &self,
+        th: &[f64; MAX_PARAMS],
+    ) -> [[f64; MAX_PARAMS]; MAX_TERMS] {
+        let sums = self.composite_sums(th);
+        let nu_p4 = self
+            .neutrino_index()
+            .map(|k| neutrino_p4(th[k], th[k + 1], th[k + 2]));
+        let mut rows = [[0.0; MAX_PARAMS]; MAX_TERMS];
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
+            let sum = sums[term.composite];
+            let mt = self.target_mass(term, th);
+            let dm2 = self.mass2_gradient(term.composite, &sum, nu_p4);
+            for j in 0..self.0.n_params {
+                rows[t][j] = dm2[j] / (2.0 * mt);
+            }
+            if let Target::Common(k) = term.target {
+                let m2 = sum.dot(&sum);
+                rows[t][self.common_index(k)] = -m2 / (2.0 * mt * mt) - 0.5;
+            }
+        }
+        rows
+    }
+
+    /// ∇_θ m² of a composite with four-momentum sum `sum`.
+    fn mass2_gradient(
+        &self,
+        composite: usize,
+        sum: &FourMomentum,
+        nu: Option<FourMomentum>,
+    ) -> [f64; MAX_PARAMS] {
+        let c = &self.0.composites[composite];
+        let mut d = [0.0; MAX_PARAMS];
+        let mut mask = c.object_mask();
+        while mask != 0 {
+            let i = mask.trailing_zeros() as usize;
+            mask &= mask - 1;
+            d[i] = 2.0 * sum.dot(&self.0.measured[i]);
+        }
+        if c.contains_neutrino() {
+            if let (Some(nu), Some(k)) = (nu, self.neutrino_index()) {
+                let ratio = sum.e() / nu.e();
+                let p = nu.p3();
+                let s = sum.p3();
+                for a in 0..3 {
+                    d[k + a] = 2.0 * (ratio * p[a] - s[a]);
+                }
+            }
+        }
+        d
+    }
+
+    /// Cost and (optionally) its gradient and Hessian in θ.
+    pub(crate) fn eval_physical(&self, th: &[f64; MAX_PARAMS], derivatives: bool) -> PhysicalEval {
+        let mut out = PhysicalEval {
+            f: 0.0,
+            g: [0.0; MAX_PARAMS],
+            h: [[0.0; MAX_PARAMS]; MAX_PARAMS],
+        };
+        for k in 0..self.0.n_common {
+            if th[self.common_index(k)] <= 0.0 {
+                out.f = f64::INFINITY;
+                return out;
+            }
+        }
+        out.f = self.measurement_chi2(th);
+        if derivatives {
+            let w = self.measurement_weight();
+            for i in 0..self.0.n_params {
+                for j in 0..self.0.n_params {
+                    out.h[i][j] = 2.0 * w[i][j];
+                }
+            }
+            for i in 0..self.0.n_objects {
+                out.g[i] = 2.0 * (th[i] - 1.0) * w[i][i];
+            }
+            if let (Some(nu), Some(k)) = (&self.0.neutrino, self.neutrino_index()) {
+                let dx = th[k] - nu.met[0];
+                let dy = th[k + 1] - nu.met[1];
+                out.g[k] = 2.0 * (nu.vinv[0] * dx + nu.vinv[1] * dy);
+                out.g[k + 1] = 2.0 * (nu.vinv[1] * dx + nu.vinv[2] * dy);
+            }
+        }
+        let sums = self.composite_sums(th);
+        let nu_p4 = self
+            .neutrino_index()
+            .map(|k| neutrino_p4(th[k], th[k + 1], th[k + 2]));
+        for term in &self.0.terms[..self.0.n_terms] {
+            let sum = sums[term.composite];
+            let m2 = sum.dot(&sum);
+            let mt = self.target_mass(term, th);
+            let c = (m2 - mt * mt) / (2.0 * mt);
+            out.f += term.linear * c + term.quadratic * c * c;
+            if !derivatives {
+                continue;
+            }
+            // d(a c + b c²)/dc and its second derivative.
+            let w1 = term.linear + 2.0 * term.quadratic * c;
+            let w2 = 2.0 * term.quadratic;
+            let dm2 = self.mass2_gradient(term.composite, &sum, nu_p4);
+            let mut dc = [0.0; MAX_PARAMS];
+            for j in 0..self.0.n_params {
+                dc[j] = dm2[j] / (2.0 * mt);
+            }
+            let common = match term.target {
+                Target::Common(k) => Some(self.common_index(k)),
+                Target::Fixed(_) => None,
+            };
+            if let Some(km) = common {
+                dc[km] = -m2 / (2.0 * mt * mt) - 0.5;
+            }
+            for i in 0..self.0.n_params {
+                out.g[i] += w1 * dc[i];
+                if dc[i] != 0.0 {
+                    for j in 0..self.0.n_params {
+                        out.h[i][j] += w2 * dc[i] * dc[j];
+                    }
+                }
+            }
+            // w1 · ∇²c: the m² part scaled by 1/(2M) ...
+            self.add_mass2_hessian(term.composite, &sum, nu_p4, w1 / (2.0 * mt), &mut out.h);
+            // ... and, for a free common mass, the M rows.
+            if let Some(km) = common {
+                for j in 0..self.0.n_params {
+                    if j != km && dm2[j] != 0.0 {
+                        let v = -w1 * dm2[j] / (2.0 * mt * mt);
+                        out.h[j][km] += v;
+                        out.h[km][j] += v;
+                    }
+                }
+                out.h[km][km] += w1 * m2 / (mt * mt * mt);
+            }
+        }
+        if !out.f.is_finite() {
+            out.f = f64::INFINITY;
+        }
+        out
+    }
+
+    /// Adds `k · ∇²m²` of a composite to `h`.
+    fn add_mass2_hessian(
+        &self,
+        composite: usize,
+        sum: &FourMomentum,
+        nu: Option<FourMomentum>,
+        k: f64,
+        h: &mut [[f64; MAX_PARAMS]; MAX_PARAMS],
+    ) {
+        let c = &self.0.composites[composite];
+        let mask = c.object_mask();
+        let mut mi = mask;
+        while mi != 0 {
+            let i = mi.trailing_zeros() as usize;
+            mi &= mi - 1;
+            let mut mj = mask;
+            while mj != 0 {
+                let j = mj.trailing_zeros() as usize;
+                mj &= mj - 1;
+                h[i][j] += k * 2.0 * self.0.measured[i].dot(&self.0.measured[j]);
+            }
+        }
+        if c.contains_neutrino() {
+            if let (Some(nu), Some(kn)) = (nu, self.neutrino_index()) {
+                let e = nu.e();
+                let p = nu.p3();
+                let mut mi = mask;
+                while mi != 0 {
+                    let i = mi.trailing_zeros() as usize;
+                    mi &= mi - 1;
+                    let q = self.0.measured[i];
+                    let qp = q.p3();
+                    for a in 0..3 {
+                        let v = k * 2.0 * (q.e() * p[a] / e - qp[a]);
+                        h[i][kn + a] += v;
+                        h[kn + a][i] += v;
+                    }
+                }
+                let ec = sum.e();
+                for a in 0..3 {
+                    for b in 0..3 {
+                        let delta = if a == b { 1.0 } else { 0.0 };
+                        let pab = p[a] * p[b];
+                        let v = pab / (e * e) + ec * (delta / e - pab / (e * e * e)) - delta;
+                        h[kn + a][kn + b] += k * 2.0 * v;
+                    }
+                }
+            }
+        }
+    }
+
+    /// The exact analytic Hessian in internal parameters x (without the
+    /// positive-definite shift of [`HessianMatrix`]); padding rows are the
+    /// identity.
+    pub fn exact_hessian(&self, x: &Params) -> SMatrix<f64, MAX_PARAMS, MAX_PARAMS> {
+        self.eval_exact(x).2
+    }
+
+    fn eval_internal(&self, x: &Params) -> (f64, Params, HessianMatrix) {
+        let (f, g, h) = self.eval_exact(x);
+        (f, g, HessianMatrix::new(h, self.0.n_params))
+    }
+
+    /// Cost, gradient and exact Hessian in internal parameters x.
+    fn eval_exact(&self, x: &Params) -> (f64, Params, SMatrix<f64, MAX_PARAMS, MAX_PARAMS>) {
+        let th = self.to_physical(x);
+        let ev = self.eval_physical(&th, true);
+        let mut g = Params::zeros();
+        let mut h = SMatrix::<f64, MAX_PARAMS, MAX_PARAMS>::identity();
+        if !ev.f.is_finite() {
+            return (f64::INFINITY, g, h);
+        }
+        let (d1, d2) = self.jacobian(&th);
+        let n = self.0.n_params;
+        for i in 0..n {
+            g[i] = d1[i] * ev.g[i];
+            for j in 0..n {
+                h[(i, j)] = d1[i] * d1[j] * ev.h[i][j];
+            }
+            h[(i, i)] += d2[i] * ev.g[i];
+        }
+        (ev.f, g, h)
+    }
+}
+
+impl CostFunction for KinematicChi2 {
+    type Param = Params;
+    type Output = f64;
+
+    fn cost(&self, x: &Params) -> Result<f64, Error> {
+        Ok(self.eval_physical(&self.to_physical(x), false).f)
+    }
+}
+
+impl Gradient for KinematicChi2 {
+    type Param = Params;
+    type Gradient = Params;
+
+    /// Computes gradient and Hessian together and keeps the Hessian for the
+    /// `hessian` call that argmin's trust region makes next at the same x.
+    fn gradient(&self, x: &Params) -> Result<Params, Error> {
+        let (_, g, h) = self.eval_internal(x);
+        *self.0.cache.borrow_mut() = Some(Cache { x: *x, h });
+        Ok(g)
+    }
+}
+
+impl Hessian for KinematicChi2 {
+    type Param = Params;
+    type Hessian = HessianMatrix;
+
+    fn hessian(&self, x: &Params) -> Result<HessianMatrix, Error> {
+        if let Some(c) = self.0.cache.borrow().as_ref() {
+            if c.x == *x {
+                return Ok(c.h.clone());
+            }
+        }
+        Ok(self.eval_internal(x).2)
+    }
+}
+
+/// The massless neutrino four-momentum (with the tiny regulator).
+#[inline]
+pub(crate) fn neutrino_p4(px: f64, py: f64, pz: f64) -> FourMomentum {
+    let e = (px * px + py * py + pz * pz + NEUTRINO_MASS2_REGULATOR).sqrt();
+    FourMomentum::new(px, py, pz, e)
+}
+
+#[inline]
+pub(crate) fn signed_sqrt(m2: f64) -> f64 {
+    if m2 >= 0.0 {
+        m2.sqrt()
+    } else {
+        -(-m2).sqrt()
+    }
+}
