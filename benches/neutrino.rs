@@ -3,6 +3,7 @@
 //! Target: ≥ 50 M real-case solutions per second per core. Run with
 //! `cargo bench --bench neutrino -- --warm-up-time 1 --measurement-time 3`.
 
+use std::f64::consts::PI;
 use std::hint::black_box;
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
@@ -35,10 +36,10 @@ fn batch(case: SolutionCase) -> Vec<(FourMomentum, f64, f64)> {
         let l = FourMomentum::from_pt_eta_phi_m(
             rng.uniform(20.0, 200.0),
             rng.uniform(-2.5, 2.5),
-            rng.uniform(-3.14, 3.14),
+            rng.uniform(-PI, PI),
             MUON_MASS,
         );
-        let (r, phi) = (rng.uniform(0.0, 200.0), rng.uniform(-3.14, 3.14));
+        let (r, phi) = (rng.uniform(0.0, 200.0), rng.uniform(-PI, PI));
         let (mx, my) = (r * phi.cos(), r * phi.sin());
         if probe.solve(&l, mx, my).map(|s| s.case()) == Ok(case) {
             out.push((l, mx, my));
