@@ -31,14 +31,18 @@ pub enum MeasuredKind {
 /// One measured object entering the fit.
 ///
 /// Invariant (checked by [`FitInput::add_object`]): all components finite,
-/// E > 0 and |p| > 0 (a direction exists), and m² ≥ −1e-6·E² (no
-/// space-like measured object beyond rounding).
+/// E > 0 and |p| > 0 (a direction exists), m² ≥ −1e-6·E² (no space-like
+/// measured object beyond rounding), and `sigma`, if given, finite and > 0.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Measured {
     /// The measured four-momentum [GeV].
     pub p4: FourMomentum,
     /// The kind of measurement.
     pub kind: MeasuredKind,
+    /// The measured quantity's σ [GeV] (E for a jet, pt for a lepton) if the
+    /// input knows it (e.g. a per-object calibration); `None` evaluates the
+    /// resolution model at the measured value.
+    pub sigma: Option<f64>,
 }
 
 impl Measured {
@@ -54,13 +58,28 @@ impl Measured {
         Measured {
             p4,
             kind: MeasuredKind::Jet,
+            sigma: None,
         }
+    }
+    /// The same object with an explicit σ [GeV] of its measured quantity.
+    ///
+    /// ```
+    /// use quarry_fit::Measured;
+    /// use quarry_lorentz::FourMomentum;
+    /// let j = Measured::jet(FourMomentum::new(0.0, 30.0, 40.0, 50.0)).with_sigma(6.0);
+    /// assert_eq!(j.sigma, Some(6.0));
+    /// ```
+    #[must_use]
+    pub fn with_sigma(mut self, sigma: f64) -> Self {
+        self.sigma = Some(sigma);
+        self
     }
     /// A measured electron.
     pub fn electron(p4: FourMomentum) -> Self {
         Measured {
             p4,
             kind: MeasuredKind::Electron,
+            sigma: None,
         }
     }
     /// A measured muon.
@@ -68,6 +87,7 @@ impl Measured {
         Measured {
             p4,
             kind: MeasuredKind::Muon,
+            sigma: None,
         }
     }
 }
@@ -218,8 +238,8 @@ pub enum FitInputError {
     /// A value is NaN or infinite.
     #[error("fit input: non-finite {0}")]
     NonFinite(&'static str),
-    /// An object has E ≤ 0, no direction, or is space-like.
-    #[error("fit input: object {0} has E <= 0, |p| = 0 or m² < 0")]
+    /// An object has E ≤ 0, no direction, is space-like, or has σ ≤ 0.
+    #[error("fit input: object {0} has E <= 0, |p| = 0, m² < 0 or sigma <= 0")]
     UnphysicalObject(usize),
     /// The MET covariance is not positive definite.
     #[error("fit input: MET covariance is not positive definite")]
@@ -280,6 +300,7 @@ impl FitInput {
             objects: [Measured {
                 p4: FourMomentum::ZERO,
                 kind: MeasuredKind::Jet,
+                sigma: None,
             }; MAX_OBJECTS],
             n_objects: 0,
             neutrino: None,
@@ -319,6 +340,14 @@ impl FitInput {
         }
         if p.e() <= 0.0 || p.p2() <= 0.0 || p.m2() < -1e-6 * p.e() * p.e() {
             return Err(FitInputError::UnphysicalObject(i));
+        }
+        if let Some(sigma) = object.sigma {
+            if !sigma.is_finite() {
+                return Err(FitInputError::NonFinite("object sigma"));
+            }
+            if sigma <= 0.0 {
+                return Err(FitInputError::UnphysicalObject(i));
+            }
         }
         self.objects[i] = object;
         self.n_objects += 1;

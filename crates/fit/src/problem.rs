@@ -215,7 +215,8 @@ pub(crate) struct PhysicalEval {
 ///
 /// ```text
 /// f = Σ_i ((s_i − 1)/r_i)²  +  dᵀ V⁻¹ d  +  Σ_t (a_t c_t + b_t c_t²)
-/// r_i = σ_i / x_i,meas      (jets: σ(E)/E; leptons: σ(pt)/pt, at the measured value)
+/// r_i = σ_i / x_i,meas      (jets: σ(E)/E; leptons: σ(pt)/pt; σ from
+///                             Measured::sigma, else the model at the measured value)
 /// d   = (px_ν − MET_x, py_ν − MET_y),  V = MET covariance
 /// c_t = (m_t² − M_t²) / (2 M_t)   (= m_t − M_t to first order; a polynomial
 ///                                   in the parameters, so no guard for m² < 0)
@@ -275,12 +276,18 @@ impl KinematicChi2 {
         let mut rel_sigma = [1.0; MAX_OBJECTS];
         for (i, o) in input.objects().iter().enumerate() {
             measured[i] = o.p4;
-            rel_sigma[i] = match o.kind {
-                MeasuredKind::Jet => model.jet_energy_sigma(o.p4.e(), o.p4.eta()) / o.p4.e(),
-                MeasuredKind::Electron => {
+            rel_sigma[i] = match (o.kind, o.sigma) {
+                (MeasuredKind::Jet, Some(s)) => s / o.p4.e(),
+                (_, Some(s)) => s / o.p4.pt(),
+                (MeasuredKind::Jet, None) => {
+                    model.jet_energy_sigma(o.p4.e(), o.p4.eta()) / o.p4.e()
+                }
+                (MeasuredKind::Electron, None) => {
                     model.lepton_pt_sigma(Flavour::Electron, o.p4.pt()) / o.p4.pt()
                 }
-                MeasuredKind::Muon => model.lepton_pt_sigma(Flavour::Muon, o.p4.pt()) / o.p4.pt(),
+                (MeasuredKind::Muon, None) => {
+                    model.lepton_pt_sigma(Flavour::Muon, o.p4.pt()) / o.p4.pt()
+                }
             };
             if !(rel_sigma[i].is_finite() && rel_sigma[i] > 0.0) {
                 return Err(FitInputError::NonFinite("object resolution"));

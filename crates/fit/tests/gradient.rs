@@ -58,7 +58,7 @@ fn analytic_derivatives_match_finite_differences() {
         let s = smear(&ev, &model, &mut rng);
         let pz = w_pz_roots(&s.lepton, s.met)[0];
         let equal = if event % 2 == 0 { None } else { Some(20.0) };
-        let input = pair_input(&s, pz, equal);
+        let input = pair_input(&s, pz, equal, false);
         let mut problem = KinematicChi2::new(&input, &model).unwrap();
         if event % 4 >= 2 {
             // Augmented-Lagrangian weights: nonzero linear terms, stiff ρ.

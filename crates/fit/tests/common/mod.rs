@@ -110,17 +110,23 @@ pub fn gauss(rng: &mut Pcg64) -> f64 {
 #[derive(Clone, Copy, Debug)]
 pub struct Smeared {
     pub jets: [FourMomentum; 4],
+    /// σ(E) used to smear each jet (the model at the true energy).
+    pub jet_sigma: [f64; 4],
     pub lepton: FourMomentum,
+    /// σ(pt) used to smear the lepton.
+    pub lepton_sigma: f64,
     pub met: [f64; 2],
     pub met_cov: [f64; 3],
 }
 
 pub fn smear(ev: &PairEvent, model: &ResolutionModel, rng: &mut Pcg64) -> Smeared {
     let mut jets = ev.jets();
-    for j in jets.iter_mut() {
+    let mut jet_sigma = [0.0; 4];
+    for (j, js) in jets.iter_mut().zip(jet_sigma.iter_mut()) {
         let sigma = model.jet_energy_sigma(j.e(), j.eta());
         let e = (j.e() + sigma * gauss(rng)).max(0.05 * j.e());
         *j = *j * (e / j.e());
+        *js = sigma;
     }
     let pt = ev.lepton.pt();
     let sigma = model.lepton_pt_sigma(quarry_event::Flavour::Muon, pt);
@@ -133,7 +139,9 @@ pub fn smear(ev: &PairEvent, model: &ResolutionModel, rng: &mut Pcg64) -> Smeare
     ];
     Smeared {
         jets,
+        jet_sigma,
         lepton,
+        lepton_sigma: sigma,
         met,
         met_cov: [s * s, 0.0, s * s],
     }
@@ -159,14 +167,30 @@ pub fn w_pz_roots(lep: &FourMomentum, met: [f64; 2]) -> [f64; 2] {
 
 /// ttbar ℓ+jets (or bW pair) fit input with the right assignment. `pz` is
 /// the neutrino start. `equal_mass`: Some(width) uses m(had) = m(lep) free
-/// instead of two top-mass constraints.
-pub fn pair_input(s: &Smeared, pz: f64, equal_mass: Option<f64>) -> FitInput {
+/// instead of two top-mass constraints. `smearing_sigma`: give the fit the
+/// σ the smearing used instead of the model at the measured value.
+pub fn pair_input(s: &Smeared, pz: f64, equal_mass: Option<f64>, smearing_sigma: bool) -> FitInput {
     let mut input = FitInput::new();
-    let b_had = input.add_object(Measured::jet(s.jets[0])).unwrap();
-    let q1 = input.add_object(Measured::jet(s.jets[1])).unwrap();
-    let q2 = input.add_object(Measured::jet(s.jets[2])).unwrap();
-    let b_lep = input.add_object(Measured::jet(s.jets[3])).unwrap();
-    let lep = input.add_object(Measured::muon(s.lepton)).unwrap();
+    let jet = |k: usize| {
+        let m = Measured::jet(s.jets[k]);
+        if smearing_sigma {
+            m.with_sigma(s.jet_sigma[k])
+        } else {
+            m
+        }
+    };
+    let b_had = input.add_object(jet(0)).unwrap();
+    let q1 = input.add_object(jet(1)).unwrap();
+    let q2 = input.add_object(jet(2)).unwrap();
+    let b_lep = input.add_object(jet(3)).unwrap();
+    let muon = Measured::muon(s.lepton);
+    let lep = input
+        .add_object(if smearing_sigma {
+            muon.with_sigma(s.lepton_sigma)
+        } else {
+            muon
+        })
+        .unwrap();
     input
         .set_neutrino(NeutrinoStart {
             p3: [s.met[0], s.met[1], pz],
