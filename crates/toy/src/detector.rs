@@ -1,7 +1,7 @@
 //! The toy detector: partons → jets, leptons, large-radius jets and MET.
 
 use quarry_event::{Event, FatJet, Flavour, Jet, Lepton, Met};
-use quarry_lorentz::FourMomentum;
+use quarry_lorentz::{wrap_phi, FourMomentum};
 use rand::Rng;
 use rand_distr::StandardNormal;
 use rand_pcg::Pcg64Mcg;
@@ -21,13 +21,42 @@ pub(crate) struct Detector {
     k_light: f64,
 }
 
-/// A jet being built from one or more partons.
+/// A jet being built from one or more partons, with its direction cached
+/// (η and φ cost a logarithm and an arctangent each).
 #[derive(Clone, Copy)]
 struct Proto {
     p4: FourMomentum,
+    eta: f64,
+    phi: f64,
     lead: usize,
-    lead_pt: f64,
 }
+
+/// Cached (η, φ) of every parton of the event: ΔR is needed many times.
+#[derive(Clone, Copy, Default)]
+struct Direction {
+    eta: f64,
+    phi: f64,
+}
+
+impl Direction {
+    fn of(p: &FourMomentum) -> Direction {
+        Direction {
+            eta: p.eta(),
+            phi: p.phi(),
+        }
+    }
+
+    #[inline]
+    fn delta_r2(&self, other: &Direction) -> f64 {
+        let deta = self.eta - other.eta;
+        let dphi = wrap_phi(self.phi - other.phi);
+        deta * deta + dphi * dphi
+    }
+}
+
+/// Partons per event the detector looks at; the generator makes at most
+/// 2 + 2·8 + 12 = 30.
+const MAX_PARTONS: usize = 32;
 
 impl Detector {
     pub(crate) fn new(cfg: &ToyConfig) -> Detector {
@@ -42,9 +71,9 @@ impl Detector {
 
     /// Energy smeared at fixed direction and mass; truncated from below.
     #[inline]
-    fn smear_jet(&self, rng: &mut Pcg64Mcg, p: &FourMomentum) -> FourMomentum {
+    fn smear_jet(&self, rng: &mut Pcg64Mcg, p: &FourMomentum, eta: f64) -> FourMomentum {
         let e = p.e();
-        let sigma = self.resolution.jet_energy_sigma(e, p.eta());
+        let sigma = self.resolution.jet_energy_sigma(e, eta);
         let z: f64 = rng.sample(StandardNormal);
         let m2 = p.m2().max(0.0);
         let floor = self
@@ -72,43 +101,66 @@ impl Detector {
         rec.jet_sources.clear();
         rec.fat_jet_sources.clear();
 
+        let n_partons = rec.partons.len().min(MAX_PARTONS);
+        let mut dirs = [Direction::default(); MAX_PARTONS];
+        for (d, p) in dirs.iter_mut().zip(&rec.partons[..n_partons]) {
+            if p.kind.is_coloured_final() || p.kind.decays() {
+                *d = Direction::of(&p.p4);
+            }
+        }
+
         // Jets: coloured final partons in decreasing pt, each merged into the
         // first earlier proto-jet within jet_merge_dr.
-        let mut order: [(f64, usize); 32] = [(0.0, 0); 32];
+        let mut order = [(0.0, 0usize); MAX_PARTONS];
         let mut n = 0;
-        for (i, p) in rec.partons.iter().enumerate() {
-            if p.kind.is_coloured_final() && n < order.len() {
-                order[n] = (p.p4.pt(), i);
+        for (i, p) in rec.partons[..n_partons].iter().enumerate() {
+            if p.kind.is_coloured_final() {
+                order[n] = (p.p4.pt2(), i);
                 n += 1;
             }
         }
         let order = &mut order[..n];
         order.sort_unstable_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
-        let mut protos: [Option<Proto>; 32] = [None; 32];
+        let mut protos = [Proto {
+            p4: FourMomentum::ZERO,
+            eta: 0.0,
+            phi: 0.0,
+            lead: 0,
+        }; MAX_PARTONS];
         let mut n_protos = 0;
         let dr2 = acc.jet_merge_dr * acc.jet_merge_dr;
-        for &(pt, i) in order.iter() {
+        for &(_, i) in order.iter() {
             let p4 = rec.partons[i].p4;
-            let target = protos[..n_protos]
-                .iter_mut()
-                .flatten()
-                .find(|pr| pr.p4.delta_r2(&p4) < dr2);
+            let d = dirs[i];
+            let target = protos[..n_protos].iter_mut().find(|pr| {
+                Direction {
+                    eta: pr.eta,
+                    phi: pr.phi,
+                }
+                .delta_r2(&d)
+                    < dr2
+            });
             match target {
-                Some(pr) => pr.p4 += p4,
+                Some(pr) => {
+                    pr.p4 += p4;
+                    let merged = Direction::of(&pr.p4);
+                    pr.eta = merged.eta;
+                    pr.phi = merged.phi;
+                }
                 None => {
-                    protos[n_protos] = Some(Proto {
+                    protos[n_protos] = Proto {
                         p4,
+                        eta: d.eta,
+                        phi: d.phi,
                         lead: i,
-                        lead_pt: pt,
-                    });
+                    };
                     n_protos += 1;
                 }
             }
         }
         let mut sum_jet_pt = 0.0;
-        for pr in protos[..n_protos].iter().flatten() {
-            debug_assert!(pr.lead_pt >= 0.0);
-            let jet_p4 = self.smear_jet(rng, &pr.p4);
+        for pr in protos[..n_protos].iter() {
+            let jet_p4 = self.smear_jet(rng, &pr.p4, pr.eta);
             let lead = rec.partons[pr.lead];
             let k = if lead.kind == PartonKind::Bottom {
                 self.k_b
@@ -116,8 +168,10 @@ impl Detector {
                 self.k_light
             };
             let btag = rng.random::<f64>().powf(k);
-            if jet_p4.pt() > acc.jet_pt_min && jet_p4.eta().abs() < acc.jet_abs_eta_max {
-                sum_jet_pt += jet_p4.pt();
+            // Direction is kept: the proto-jet's η is the jet's.
+            let pt = jet_p4.pt();
+            if pt > acc.jet_pt_min && pr.eta.abs() < acc.jet_abs_eta_max {
+                sum_jet_pt += pt;
                 event
                     .jets
                     .push(Jet::new(jet_p4, btag).with_truth(lead.truth));
@@ -165,8 +219,8 @@ impl Detector {
         // enough pt whose final decay products all lie within the radius;
         // the outermost such parent wins (a contained top hides its W).
         let r2 = acc.fat_jet_radius * acc.fat_jet_radius;
-        let mut covered = [false; 64];
-        for i in 0..rec.partons.len().min(covered.len()) {
+        let mut covered = [false; MAX_PARTONS];
+        for i in 0..n_partons {
             let p = rec.partons[i];
             if let Some(parent) = p.parent {
                 if covered[parent] {
@@ -181,14 +235,14 @@ impl Detector {
             {
                 continue;
             }
-            if !self.contained_hadronic(rec, i, &p.p4, r2) {
+            if !contained_hadronic(rec, &dirs, i, r2) {
                 continue;
             }
             covered[i] = true;
             // Smear the whole four-vector by the jet energy resolution (mass
             // scales with energy: a crude stand-in for jet-mass resolution).
             let e = p.p4.e();
-            let sigma = self.resolution.jet_energy_sigma(e, p.p4.eta());
+            let sigma = self.resolution.jet_energy_sigma(e, dirs[i].eta);
             let e_new =
                 (e + sigma * rng.sample::<f64, _>(StandardNormal)).max(acc.jet_energy_floor);
             let fat = p.p4 * (e_new / e);
@@ -228,31 +282,22 @@ impl Detector {
             }
         }
     }
+}
 
-    /// Whether every final descendant of entry `i` is a quark or gluon lying
-    /// within ΔR² < `r2` of `axis`.
-    fn contained_hadronic(
-        &self,
-        rec: &PartonRecord,
-        i: usize,
-        axis: &FourMomentum,
-        r2: f64,
-    ) -> bool {
-        let mut any = false;
-        for (j, p) in rec.partons.iter().enumerate().skip(i + 1) {
-            if !descends_from(rec, j, i) {
-                continue;
-            }
-            if p.kind.decays() {
-                continue;
-            }
-            if !p.kind.is_coloured_final() || p.p4.delta_r2(axis) >= r2 {
-                return false;
-            }
-            any = true;
+/// Whether every final descendant of entry `i` is a quark or gluon lying
+/// within ΔR² < `r2` of entry `i`.
+fn contained_hadronic(rec: &PartonRecord, dirs: &[Direction], i: usize, r2: f64) -> bool {
+    let mut any = false;
+    for (j, p) in rec.partons.iter().enumerate().take(dirs.len()).skip(i + 1) {
+        if p.kind.decays() || !descends_from(rec, j, i) {
+            continue;
         }
-        any
+        if !p.kind.is_coloured_final() || dirs[j].delta_r2(&dirs[i]) >= r2 {
+            return false;
+        }
+        any = true;
     }
+    any
 }
 
 fn descends_from(rec: &PartonRecord, mut j: usize, ancestor: usize) -> bool {
