@@ -1,7 +1,35 @@
 //! quarry: event reconstruction for heavy-quark searches and top-quark
 //! measurements at hadron colliders.
 //!
-//! This facade re-exports each stage of the data's path as its own module.
+//! This facade re-exports each stage of the data's path as its own module
+//! and adds the [`Pipeline`] that joins them: object selection, event
+//! variables, the χ² assignment search for one or more hypotheses, the
+//! optional kinematic fit and truth matching. The `quarry` command line is a
+//! thin layer over it.
+//!
+//! **Design decision:** a [`Pipeline`] is immutable configuration shared by
+//! every thread, and all mutable search state lives in a per-thread
+//! [`Worker`], so the same code serves one event, a slice in parallel, or an
+//! endless stream in bounded chunks ([`stream::ordered_chunked_map`]) with
+//! results always in input order.
+//!
+//! ```
+//! use quarry::{Pipeline, Status};
+//! use quarry::toy::{Generator, ToyConfig};
+//!
+//! // Events built in code (here: from the toy generator), no CSV involved.
+//! let events: Vec<_> = Generator::new(ToyConfig::top_pair(), 7).unwrap().take(20).collect();
+//! let pipeline = Pipeline::builder().preset("ttbar-ljets").build().unwrap();
+//! let results = pipeline.reconstruct_all(&events);
+//! assert_eq!(results.len(), events.len());
+//! for (event, per_hypothesis) in events.iter().zip(&results) {
+//!     let r = &per_hypothesis[0];
+//!     assert_eq!(r.event_id, event.id);
+//!     if r.status == Status::Ok {
+//!         assert!(r.best().unwrap().chi2() >= 0.0);
+//!     }
+//! }
+//! ```
 #![deny(missing_docs)]
 
 pub use quarry_assign as assign;
@@ -15,3 +43,11 @@ pub use quarry_pdg as pdg;
 pub use quarry_resolution as resolution;
 pub use quarry_toy as toy;
 pub use quarry_vars as vars;
+
+pub mod output;
+mod pipeline;
+pub mod stream;
+
+pub use pipeline::{
+    fit_status_name, Pipeline, PipelineBuilder, PipelineError, Reconstruction, Status, Worker,
+};

@@ -1,4 +1,40 @@
-//! The `quarry` command line.
-fn main() {
-    println!("quarry");
+//! The `quarry` command line: a thin layer over [`quarry::Pipeline`] that
+//! streams CSV events in, and result rows out.
+//!
+//! Subcommands: `reco` (reconstruct), `presets list|show` (built-in
+//! hypotheses), `generate` (toy events). Exit codes are listed in
+//! `quarry reco --help` and docs/cli.md.
+
+use std::process::ExitCode;
+
+use clap::Parser;
+
+mod cli;
+
+use cli::args::{Cli, Command};
+use cli::Failure;
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            // Help and version go to stdout and succeed; every other parse
+            // failure is a usage error (exit 1, not clap's default 2, which
+            // quarry reserves for input errors).
+            let _ = e.print();
+            return ExitCode::from(if e.use_stderr() { Failure::USAGE } else { 0 });
+        }
+    };
+    let result = match cli.command {
+        Command::Reco(args) => cli::reco::run(&args),
+        Command::Presets(cmd) => cli::presets::run(&cmd),
+        Command::Generate(args) => cli::generate::run(&args),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(failure) => {
+            eprintln!("quarry: error: {}", failure.message());
+            ExitCode::from(failure.code())
+        }
+    }
 }

@@ -1,0 +1,216 @@
+//! Command-line arguments (clap derive).
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+use quarry::stream::Shard;
+
+/// The exit-code table, shown in `--help` and docs/cli.md (a macro so that
+/// `concat!` can splice it into help texts).
+macro_rules! exit_codes_help {
+    () => {
+        "Exit codes:
+  0  success (events rejected under --on-bad skip still count as success:
+     they appear in the output with status bad_input)
+  1  usage or configuration error (bad option, unknown preset, invalid
+     hypothesis file, bad generator settings)
+  2  input error: an input cannot be opened or read, has no usable header,
+     or (under --on-bad stop) holds a bad event
+  3  output error: the output cannot be created or written
+"
+    };
+}
+
+#[derive(Debug, Parser)]
+#[command(
+    name = "quarry",
+    version,
+    about = "Event reconstruction for heavy-quark searches and top-quark measurements",
+    long_about = "quarry reads collision events (jets with b-tag scores, leptons, MET, \
+                  large-radius jets), picks which jet came from which parton under one or \
+                  more decay hypotheses, optionally refines them with a constrained \
+                  kinematic fit, and writes one result row per event and hypothesis.",
+    after_help = concat!(
+        "Example:\n",
+        "  quarry generate --process ttbar --events 1000 --seed 7 -o ttbar.csv.gz\n",
+        "  quarry reco ttbar.csv.gz --hypothesis ttbar-ljets -o ttbar-reco.csv\n\n",
+        exit_codes_help!()
+    )
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Reconstruct events: assignment search, optional fit, event variables.
+    #[command(after_help = RECO_HELP)]
+    Reco(RecoArgs),
+    /// List or print the built-in hypotheses (presets).
+    #[command(subcommand)]
+    Presets(PresetsCommand),
+    /// Write toy events (fictional 14 TeV run) with truth labels as CSV.
+    #[command(after_help = GENERATE_HELP)]
+    Generate(GenerateArgs),
+}
+
+const RECO_HELP: &str = concat!(
+    "Examples:\n",
+    "  # top-pair reconstruction of a gzipped file, 2 threads, to out.csv\n",
+    "  quarry reco events.csv.gz --hypothesis ttbar-ljets --threads 2 -o out.csv\n",
+    "  # two hypotheses plus the kinematic fit; read stdin, write stdout\n",
+    "  zcat events.csv.gz | quarry reco - -H ttbar-ljets -H my-hypothesis.toml --fit\n",
+    "  # shard 3 of 10 of a large input (batch job array)\n",
+    "  quarry reco big.csv.gz -H ttbar-ljets --shard 3/10 -o part-3.csv\n\n",
+    "Output: one row per input event per hypothesis, in input order, whatever\n",
+    "--threads is. Columns are listed in docs/cli.md.\n\n",
+    exit_codes_help!(),
+);
+
+const GENERATE_HELP: &str = concat!(
+    "Examples:\n",
+    "  quarry generate --process ttbar --events 10000 --seed 1 -o ttbar.csv.gz\n",
+    "  quarry generate --process vlq-t --mass 1400 --decay bW -n 500 -o signal.csv\n\n",
+    "The same seed always gives the same file.\n\n",
+    exit_codes_help!(),
+);
+
+/// What to do with an event the reader rejects.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum OnBad {
+    /// Keep going: the event gets rows with status bad_input and the reason.
+    Skip,
+    /// End the run at the first bad event (exit code 2).
+    Stop,
+}
+
+#[derive(Debug, Args)]
+pub struct RecoArgs {
+    /// Input event files (quarry CSV, optionally .gz); `-` reads stdin.
+    #[arg(required = true, value_name = "INPUT")]
+    pub inputs: Vec<PathBuf>,
+
+    /// Hypothesis: a preset name (see `quarry presets list`) or a TOML file.
+    /// Repeat for several; rows of one event follow the order given.
+    #[arg(
+        short = 'H',
+        long = "hypothesis",
+        value_name = "NAME|FILE",
+        default_value = "ttbar-ljets"
+    )]
+    pub hypotheses: Vec<String>,
+
+    /// Also run the constrained kinematic fit on the best assignment.
+    #[arg(long)]
+    pub fit: bool,
+
+    /// Output file (`-` = stdout; `.gz` suffix gzips). Written atomically.
+    #[arg(short, long, default_value = "-", value_name = "FILE")]
+    pub output: PathBuf,
+
+    /// Worker threads (default: all cores).
+    #[arg(short = 'j', long, value_name = "N")]
+    pub threads: Option<usize>,
+
+    /// Process only shard K of N (0-based): events whose position in the
+    /// input stream modulo N equals K.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<Shard>,
+
+    /// Policy for events the reader rejects.
+    #[arg(long, value_enum, default_value = "skip")]
+    pub on_bad: OnBad,
+
+    /// Events per parallel chunk (bounds memory).
+    #[arg(long, default_value_t = 4096, value_name = "N")]
+    pub chunk_size: usize,
+
+    /// Treat inputs as already selected: apply no object thresholds.
+    #[arg(long)]
+    pub no_selection: bool,
+
+    /// b-tag working point: a jet with score above it counts as b-tagged.
+    #[arg(long, value_name = "SCORE")]
+    pub btag_threshold: Option<f64>,
+
+    /// Hide the progress bar (it is hidden anyway when stderr is not a terminal).
+    #[arg(long)]
+    pub no_progress: bool,
+
+    /// Do not print the end-of-run summary on stderr.
+    #[arg(short, long)]
+    pub quiet: bool,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum PresetsCommand {
+    /// Print every preset's name and a one-line description.
+    #[command(after_help = "Example:\n  quarry presets list\n")]
+    List,
+    /// Print one preset as TOML, to copy and edit into your own hypothesis.
+    #[command(
+        after_help = "Example:\n  quarry presets show ttbar-ljets > my-hypothesis.toml\n  quarry reco events.csv -H my-hypothesis.toml\n"
+    )]
+    Show {
+        /// Preset name.
+        name: String,
+    },
+}
+
+/// Processes the toy generator can produce.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum ProcessArg {
+    /// Top-quark pair (the main background).
+    Ttbar,
+    /// Up-type vector-like quark pair T T̄ (T → bW, tZ, tH).
+    VlqT,
+    /// Down-type vector-like quark pair B B̄ (B → tW, bZ, bH).
+    VlqB,
+    /// Charge-5/3 quark pair (X → tW).
+    X53,
+    /// Excited-top pair (t* → tg).
+    Tstar,
+}
+
+#[derive(Debug, Args)]
+pub struct GenerateArgs {
+    /// Process to generate.
+    #[arg(short, long, value_enum, default_value = "ttbar")]
+    pub process: ProcessArg,
+
+    /// Mass of the new heavy quark [GeV] (heavy-quark processes only;
+    /// default 1200).
+    #[arg(short, long, value_name = "GEV")]
+    pub mass: Option<f64>,
+
+    /// Force one decay mode of the heavy quark (bW, tZ, tH, tW, bZ, bH, tg)
+    /// instead of the partner's default branching fractions.
+    #[arg(short, long, value_name = "MODE")]
+    pub decay: Option<String>,
+
+    /// Full generator configuration as TOML (replaces --process, --mass,
+    /// --decay).
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["process", "mass", "decay"])]
+    pub config: Option<PathBuf>,
+
+    /// Number of events.
+    #[arg(short = 'n', long, default_value_t = 1000)]
+    pub events: u64,
+
+    /// Random seed: the same seed gives the same file.
+    #[arg(short, long, default_value_t = 1)]
+    pub seed: u64,
+
+    /// Id of the first event (ids are consecutive).
+    #[arg(long, default_value_t = 0, value_name = "ID")]
+    pub first_id: u64,
+
+    /// Worker threads (default: all cores); the output does not depend on it.
+    #[arg(short = 'j', long, value_name = "N")]
+    pub threads: Option<usize>,
+
+    /// Output file (`-` = stdout; `.gz` suffix gzips). Written atomically.
+    #[arg(short, long, default_value = "-", value_name = "FILE")]
+    pub output: PathBuf,
+}

@@ -1,0 +1,42 @@
+//! The subcommands of the `quarry` binary and how their failures map to exit
+//! codes.
+
+pub mod args;
+pub mod generate;
+pub mod presets;
+pub mod reco;
+pub mod summary;
+
+/// A failed run: what to print (one line) and which exit code to return.
+#[derive(Debug)]
+pub enum Failure {
+    /// Bad option, unknown preset, invalid hypothesis or generator settings.
+    Usage(String),
+    /// Unreadable input, or a bad event under `--on-bad stop`.
+    Input(String),
+    /// The output cannot be created or written.
+    Output(String),
+}
+
+impl Failure {
+    /// Exit code of a usage or configuration error.
+    pub const USAGE: u8 = 1;
+    /// Exit code of an input error.
+    pub const INPUT: u8 = 2;
+    /// Exit code of an output error.
+    pub const OUTPUT: u8 = 3;
+
+    pub fn code(&self) -> u8 {
+        match self {
+            Failure::Usage(_) => Self::USAGE,
+            Failure::Input(_) => Self::INPUT,
+            Failure::Output(_) => Self::OUTPUT,
+        }
+    }
+
+    /// The message, on one line.
+    pub fn message(&self) -> String {
+        let (Failure::Usage(m) | Failure::Input(m) | Failure::Output(m)) = self;
+        m.replace('\n', " ")
+    }
+}

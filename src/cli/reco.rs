@@ -1,0 +1,248 @@
+//! `quarry reco`: stream events through the pipeline, write one row per
+//! event per hypothesis, in input order.
+
+use std::path::PathBuf;
+
+use quarry::assign::{BtagPolicy, SearchConfig};
+use quarry::csv::{BadReason, ErrorPolicy, EventReader, ReadOptions, Record, RowWriter};
+use quarry::event::Selection;
+use quarry::output::Row;
+use quarry::stream::{ordered_chunked_map, Shard};
+use quarry::{Pipeline, Reconstruction};
+
+use super::args::{OnBad, RecoArgs};
+use super::summary::{progress_bar, Summary};
+use super::Failure;
+
+/// A rayon pool with `threads` workers (all cores when `None`).
+pub fn thread_pool(threads: Option<usize>) -> Result<rayon::ThreadPool, Failure> {
+    if threads == Some(0) {
+        return Err(Failure::Usage("--threads must be at least 1".into()));
+    }
+    let mut b = rayon::ThreadPoolBuilder::new();
+    if let Some(n) = threads {
+        b = b.num_threads(n);
+    }
+    b.build()
+        .map_err(|e| Failure::Usage(format!("cannot start {threads:?} threads: {e}")))
+}
+
+/// Builds the pipeline the options describe.
+pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
+    let btag = args
+        .btag_threshold
+        .unwrap_or(Selection::default().btag_threshold);
+    if !(0.0..=1.0).contains(&btag) {
+        return Err(Failure::Usage(format!(
+            "--btag-threshold {btag} must be within [0, 1]"
+        )));
+    }
+    let selection = if args.no_selection {
+        Selection {
+            btag_threshold: btag,
+            ..Selection::keep_all()
+        }
+    } else {
+        Selection {
+            btag_threshold: btag,
+            ..Selection::default()
+        }
+    };
+    let mut b = Pipeline::builder()
+        .fit(args.fit)
+        .selection(selection)
+        .search_config(SearchConfig {
+            btag: BtagPolicy::Threshold(btag),
+            ..SearchConfig::default()
+        });
+    for h in &args.hypotheses {
+        b = b.hypothesis_arg(h);
+    }
+    b.build().map_err(|e| Failure::Usage(e.to_string()))
+}
+
+/// Every input, one after the other, as `(ordinal, record)` for the
+/// records of this shard. Under the stop policy the first bad record (in
+/// any shard, so that every shard of a job array stops alike) becomes an
+/// input failure.
+struct Records<'a> {
+    inputs: std::slice::Iter<'a, PathBuf>,
+    current: Option<EventReader>,
+    options: ReadOptions,
+    shard: Shard,
+    next_ordinal: u64,
+    warned: usize,
+    quiet: bool,
+    /// Records read, all shards.
+    read: u64,
+}
+
+impl Records<'_> {
+    fn flush_warnings(&mut self) {
+        if let Some(r) = &self.current {
+            for w in &r.warnings()[self.warned..] {
+                if !self.quiet {
+                    eprintln!("quarry: warning: {w}");
+                }
+            }
+            self.warned = r.warnings().len();
+        }
+    }
+}
+
+impl Iterator for Records<'_> {
+    type Item = Result<(u64, Record), Failure>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        loop {
+            if self.current.is_none() {
+                let path = self.inputs.next()?;
+                match EventReader::open(path, self.options) {
+                    Ok(r) => {
+                        self.current = Some(r);
+                        self.warned = 0;
+                        self.flush_warnings();
+                    }
+                    Err(e) => return Some(Err(Failure::Input(e.to_string()))),
+                }
+            }
+            let reader = self.current.as_mut()?;
+            match reader.next() {
+                None => {
+                    self.flush_warnings();
+                    self.current = None;
+                }
+                Some(Err(e)) => return Some(Err(Failure::Input(e.to_string()))),
+                Some(Ok(record)) => {
+                    let ordinal = self.next_ordinal;
+                    self.next_ordinal += 1;
+                    self.read += 1;
+                    if let (Record::Bad(bad), ErrorPolicy::Stop) = (&record, self.options.policy) {
+                        let id = match bad.id {
+                            Some(id) => format!("event {id}"),
+                            None => format!("event '{}'", bad.raw_id),
+                        };
+                        return Some(Err(Failure::Input(format!(
+                            "{} ({id}; stopped at the first bad event, use --on-bad skip to go on)",
+                            bad.error
+                        ))));
+                    }
+                    if self.shard.keeps(ordinal) {
+                        return Some(Ok((ordinal, record)));
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// The rows of one record, and the reader's reason if it was rejected.
+fn rows_of(
+    worker: &mut quarry::Worker<'_>,
+    pipeline: &Pipeline,
+    ordinal: u64,
+    record: Record,
+) -> (Vec<Row>, Option<BadReason>) {
+    match record {
+        Record::Good(event) => {
+            let recs: Vec<Reconstruction> = worker.reconstruct(event);
+            let rows = recs
+                .iter()
+                .map(|r| Row::from_reconstruction(ordinal, r))
+                .collect();
+            (rows, None)
+        }
+        Record::Bad(bad) => {
+            let reason = bad.error.to_string();
+            let rows = pipeline
+                .hypotheses()
+                .iter()
+                .map(|h| Row::bad_input(ordinal, bad.id, h.name(), &reason))
+                .collect();
+            (rows, Some(bad.reason()))
+        }
+    }
+}
+
+pub fn run(args: &RecoArgs) -> Result<(), Failure> {
+    let stdin_uses = args.inputs.iter().filter(|p| p.as_os_str() == "-").count();
+    if stdin_uses > 1 {
+        return Err(Failure::Usage(
+            "standard input ('-') can be read only once".into(),
+        ));
+    }
+    if args.chunk_size == 0 {
+        return Err(Failure::Usage("--chunk-size must be at least 1".into()));
+    }
+    let pipeline = pipeline(args)?;
+    let pool = thread_pool(args.threads)?;
+    let policy = match args.on_bad {
+        OnBad::Skip => ErrorPolicy::Skip,
+        OnBad::Stop => ErrorPolicy::Stop,
+    };
+    let mut records = Records {
+        inputs: args.inputs.iter(),
+        current: None,
+        options: ReadOptions::default().with_policy(policy),
+        shard: args.shard.unwrap_or_default(),
+        next_ordinal: 0,
+        warned: 0,
+        quiet: args.quiet,
+        read: 0,
+    };
+    let mut writer: RowWriter<Row> =
+        RowWriter::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
+    let mut summary = Summary::start();
+    let bar = progress_bar(!args.no_progress && !args.quiet);
+    let result = pool.install(|| {
+        ordered_chunked_map(
+            &mut records,
+            args.chunk_size,
+            || pipeline.worker(),
+            |worker, (ordinal, record)| rows_of(worker, &pipeline, ordinal, record),
+            |(rows, bad)| {
+                summary.processed += 1;
+                if let Some(reason) = bad {
+                    *summary.bad_by_reason.entry(reason.as_str()).or_default() += 1;
+                }
+                for row in &rows {
+                    *summary.by_status.entry(row.status).or_default() += 1;
+                    writer
+                        .write(row)
+                        .map_err(|e| Failure::Output(e.to_string()))?;
+                    summary.rows += 1;
+                }
+                bar.inc(1);
+                Ok(())
+            },
+        )
+    });
+    bar.finish_and_clear();
+    summary.read = records.read;
+    let names: Vec<String> = pipeline
+        .hypotheses()
+        .iter()
+        .map(|h| h.name().to_string())
+        .collect();
+    let shard = args.shard.map(|s| s.to_string());
+    match result {
+        Ok(()) => {
+            writer
+                .finish()
+                .map_err(|e| Failure::Output(e.to_string()))?;
+            if !args.quiet {
+                eprint!("{}", summary.render(&names, shard));
+            }
+            Ok(())
+        }
+        Err(failure) => {
+            // The output is not committed: a file output leaves nothing
+            // under its name (stdout already has the rows before the error).
+            drop(writer);
+            if !args.quiet {
+                eprint!("{}", summary.render(&names, shard));
+            }
+            Err(failure)
+        }
+    }
+}
