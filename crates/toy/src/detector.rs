@@ -231,7 +231,7 @@ impl Detector {
             if !matches!(
                 p.kind,
                 PartonKind::Top | PartonKind::W | PartonKind::Z | PartonKind::Higgs
-            ) || p.p4.pt() < acc.fat_jet_pt_min
+            ) || p.p4.pt2() < acc.fat_jet_pt_min * acc.fat_jet_pt_min
             {
                 continue;
             }
@@ -267,16 +267,18 @@ impl Detector {
         };
 
         // Order by decreasing pt and number the objects.
-        sort_by_pt(&mut event.jets, &mut rec.jet_sources, |j| j.p4.pt());
+        sort_by_pt(&mut event.jets, &mut rec.jet_sources, |j| j.p4.pt2());
         for (i, j) in event.jets.iter_mut().enumerate() {
             j.index = i as u32;
         }
-        sort_by_pt(&mut event.fat_jets, &mut rec.fat_jet_sources, |j| j.p4.pt());
+        sort_by_pt(&mut event.fat_jets, &mut rec.fat_jet_sources, |j| {
+            j.p4.pt2()
+        });
         for (i, j) in event.fat_jets.iter_mut().enumerate() {
             j.index = i as u32;
         }
         for leptons in [&mut event.electrons, &mut event.muons] {
-            leptons.sort_by(|a, b| b.p4.pt().total_cmp(&a.p4.pt()));
+            leptons.sort_by(|a, b| b.p4.pt2().total_cmp(&a.p4.pt2()));
             for (i, l) in leptons.iter_mut().enumerate() {
                 l.index = i as u32;
             }
@@ -310,13 +312,14 @@ fn descends_from(rec: &PartonRecord, mut j: usize, ancestor: usize) -> bool {
     false
 }
 
-/// Sorts objects by decreasing pt, permuting `sources` the same way.
-fn sort_by_pt<T: Copy>(objects: &mut [T], sources: &mut [FourMomentum], pt: impl Fn(&T) -> f64) {
+/// Sorts objects by decreasing `pt2` (pt²: same order, no square root),
+/// permuting `sources` the same way.
+fn sort_by_pt<T: Copy>(objects: &mut [T], sources: &mut [FourMomentum], pt2: impl Fn(&T) -> f64) {
     let n = objects.len();
     // Insertion sort: events hold a handful of objects.
     for i in 1..n {
         let mut j = i;
-        while j > 0 && pt(&objects[j - 1]) < pt(&objects[j]) {
+        while j > 0 && pt2(&objects[j - 1]) < pt2(&objects[j]) {
             objects.swap(j - 1, j);
             sources.swap(j - 1, j);
             j -= 1;
