@@ -21,7 +21,7 @@ fn decay(rng: &mut Pcg64, parent: FourMomentum, m1: f64, m2: f64) -> (FourMoment
     let p = lam.max(0.0).sqrt() / (2.0 * m);
     let cos: f64 = rng.random_range(-1.0..1.0);
     let sin = (1.0 - cos * cos).sqrt();
-    let phi: f64 = rng.random_range(-3.14159..3.14159);
+    let phi: f64 = rng.random_range(-std::f64::consts::PI..std::f64::consts::PI);
     let (x, y, z) = (p * sin * phi.cos(), p * sin * phi.sin(), p * cos);
     let a = FourMomentum::new(x, y, z, (p * p + m1 * m1).sqrt());
     let b = FourMomentum::new(-x, -y, -z, (p * p + m2 * m2).sqrt());

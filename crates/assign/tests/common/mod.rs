@@ -460,7 +460,7 @@ pub fn random_event_with(
         let p4 = FourMomentum::from_pt_eta_phi_m(
             rng.random_range(20.0..400.0),
             rng.random_range(-2.5..2.5),
-            rng.random_range(-3.14..3.14),
+            rng.random_range(-std::f64::consts::PI..std::f64::consts::PI),
             rng.random_range(0.0..25.0),
         );
         let btag = if binary {
@@ -489,7 +489,7 @@ pub fn random_event_with(
             p4: FourMomentum::from_pt_eta_phi_m(
                 rng.random_range(25.0..250.0),
                 rng.random_range(-2.5..2.5),
-                rng.random_range(-3.14..3.14),
+                rng.random_range(-std::f64::consts::PI..std::f64::consts::PI),
                 mass,
             ),
             flavour,
@@ -508,7 +508,7 @@ pub fn random_event_with(
             p4: FourMomentum::from_pt_eta_phi_m(
                 rng.random_range(200.0..800.0),
                 rng.random_range(-2.0..2.0),
-                rng.random_range(-3.14..3.14),
+                rng.random_range(-std::f64::consts::PI..std::f64::consts::PI),
                 rng.random_range(30.0..220.0),
             ),
             truth: None,
