@@ -144,7 +144,7 @@ impl DecayMode {
         }
     }
 
-    /// Sum of the nominal (pole) masses of the two daughters [GeV]: the
+    /// Sum of the nominal (pole) masses of the two daughters (GeV): the
     /// heavy quark must be heavier than this.
     ///
     /// ```
@@ -288,7 +288,7 @@ impl Branching {
 pub struct HeavyQuark {
     /// Which partner.
     pub partner: Partner,
-    /// Pole mass [GeV].
+    /// Pole mass (GeV).
     pub mass: f64,
     /// Total width as a fraction of the mass. Default 0.01 (narrow: well
     /// below the jet mass resolution, so the reconstructed peak width is set
@@ -397,10 +397,10 @@ pub enum Process {
 pub struct Radiation {
     /// Poisson mean of the number of radiated gluons per event. Default 1.0.
     pub mean: f64,
-    /// Lowest transverse momentum of a radiated gluon [GeV]; the spectrum
+    /// Lowest transverse momentum of a radiated gluon (GeV); the spectrum
     /// falls as pt⁻³ above it. Default 20.
     pub pt_min: f64,
-    /// Highest transverse momentum [GeV] (the spectrum is cut there).
+    /// Highest transverse momentum (GeV) (the spectrum is cut there).
     /// Default 1000.
     pub pt_max: f64,
     /// Width of the Gaussian pseudorapidity distribution. Default 1.8.
@@ -445,26 +445,26 @@ impl Default for Production {
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct Acceptance {
-    /// Minimum jet pt after smearing [GeV]. Default 20.
+    /// Minimum jet pt after smearing (GeV). Default 20.
     pub jet_pt_min: f64,
     /// Maximum jet |η|. Default 4.5.
     pub jet_abs_eta_max: f64,
     /// Partons closer than this ΔR are merged into one jet. Default 0.4;
     /// 0 disables merging.
     pub jet_merge_dr: f64,
-    /// Smeared jet energies are truncated from below at this value [GeV]
+    /// Smeared jet energies are truncated from below at this value (GeV)
     /// (or just above the jet mass, if larger). Default 1.
     pub jet_energy_floor: f64,
-    /// Minimum electron pt after smearing [GeV]. Default 10.
+    /// Minimum electron pt after smearing (GeV). Default 10.
     pub electron_pt_min: f64,
     /// Maximum electron |η|. Default 2.5.
     pub electron_abs_eta_max: f64,
-    /// Minimum muon pt after smearing [GeV]. Default 10.
+    /// Minimum muon pt after smearing (GeV). Default 10.
     pub muon_pt_min: f64,
     /// Maximum muon |η|. Default 2.5.
     pub muon_abs_eta_max: f64,
     /// A hadronically decaying W, Z, H or top with at least this true pt
-    /// [GeV] may become a large-radius jet. Default 200.
+    /// (GeV) may become a large-radius jet. Default 200.
     pub fat_jet_pt_min: f64,
     /// Maximum large-radius jet |η|. Default 2.0.
     pub fat_jet_abs_eta_max: f64,
@@ -555,7 +555,7 @@ impl BTagModel {
 pub struct ToyConfig {
     /// What is produced.
     pub process: Process,
-    /// Collider centre-of-mass energy [GeV]. Default 14000.
+    /// Collider centre-of-mass energy (GeV). Default 14000.
     pub sqrt_s: f64,
     /// Production kinematics.
     pub production: Production,

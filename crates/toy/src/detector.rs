@@ -10,7 +10,7 @@ use crate::config::{Acceptance, BTagModel, ToyConfig};
 use crate::partons::{PartonKind, PartonRecord};
 use quarry_resolution::ResolutionModel;
 
-/// Smallest smeared lepton pt [GeV] (the Gaussian is truncated there).
+/// Smallest smeared lepton pt (GeV) (the Gaussian is truncated there).
 const LEPTON_PT_FLOOR: f64 = 0.1;
 
 #[derive(Clone, Debug)]

@@ -117,21 +117,26 @@ pub fn two_body_decay(
 /// its cumulative distribution at the uniform number `u` ∈ [0, 1]:
 /// m² = M² + MΓ tan(θ_lo + u(θ_hi − θ_lo)), θ = atan((m² − M²)/(MΓ)).
 ///
-/// With `width` = 0, or an empty window, the result is `mass` clamped to the
-/// window. The result always lies in [lo, hi] (when lo ≤ hi) and is finite
-/// for finite input.
+/// With `width` = 0 the result is `mass` clamped to the window. `None` if
+/// any input is non-finite, `mass` or `width` is negative, or `lo > hi`;
+/// otherwise the result lies in [lo, hi].
 ///
 /// ```
 /// use quarry_toy::breit_wigner_mass;
 /// // The median of a symmetric window is the pole mass.
-/// let m = breit_wigner_mass(0.5, 80.0, 2.0, 50.0, 110.0);
+/// let m = breit_wigner_mass(0.5, 80.0, 2.0, 50.0, 110.0).unwrap();
 /// assert!((m - 80.0).abs() < 0.05);
-/// assert_eq!(breit_wigner_mass(0.3, 80.0, 0.0, 50.0, 110.0), 80.0);
+/// assert_eq!(breit_wigner_mass(0.3, 80.0, 0.0, 50.0, 110.0), Some(80.0));
+/// assert_eq!(breit_wigner_mass(0.3, 80.0, 2.0, 110.0, 50.0), None);
 /// ```
 #[inline]
-pub fn breit_wigner_mass(u: f64, mass: f64, width: f64, lo: f64, hi: f64) -> f64 {
-    if width <= 0.0 || hi <= lo || !u.is_finite() {
-        return mass.clamp(lo.min(hi), hi.max(lo));
+pub fn breit_wigner_mass(u: f64, mass: f64, width: f64, lo: f64, hi: f64) -> Option<f64> {
+    let finite = [u, mass, width, lo, hi].iter().all(|x| x.is_finite());
+    if !finite || mass < 0.0 || width < 0.0 || lo > hi {
+        return None;
+    }
+    if width == 0.0 || mass == 0.0 || hi == lo {
+        return Some(mass.clamp(lo, hi));
     }
     let m2 = mass * mass;
     let mg = mass * width;
@@ -139,7 +144,7 @@ pub fn breit_wigner_mass(u: f64, mass: f64, width: f64, lo: f64, hi: f64) -> f64
     let t_hi = ((hi * hi - m2) / mg).atan();
     let t = t_lo + u.clamp(0.0, 1.0) * (t_hi - t_lo);
     let s = m2 + mg * t.tan();
-    s.max(0.0).sqrt().clamp(lo, hi)
+    Some(s.max(0.0).sqrt().clamp(lo, hi))
 }
 
 /// `a + b` rounded, and the rounding error (Knuth's TwoSum).
@@ -185,7 +190,9 @@ impl MassWindow {
     /// A draw with the upper edge lowered to `cap` when that is smaller.
     #[inline]
     pub(crate) fn draw(&self, u: f64, cap: f64) -> f64 {
-        let hi = self.hi.min(cap);
-        breit_wigner_mass(u, self.mass, self.width, self.lo, hi.max(self.lo))
+        let hi = self.hi.min(cap).max(self.lo);
+        // Windows are built from finite, validated masses: `None` cannot
+        // occur; the pole mass is a safe fallback all the same.
+        breit_wigner_mass(u, self.mass, self.width, self.lo, hi).unwrap_or(self.mass)
     }
 }

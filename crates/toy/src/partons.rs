@@ -72,9 +72,9 @@ impl PartonKind {
 pub struct Parton {
     /// What it is.
     pub kind: PartonKind,
-    /// Four-momentum in the lab [GeV].
+    /// Four-momentum in the lab (GeV).
     pub p4: FourMomentum,
-    /// Generated mass [GeV] (Breit–Wigner for unstable particles, the PDG
+    /// Generated mass (GeV) (Breit–Wigner for unstable particles, the PDG
     /// mass otherwise); equals `p4.m()` up to rounding.
     pub mass: f64,
     /// Index of the parent entry, `None` for the two pair-produced quarks
@@ -263,7 +263,7 @@ pub(crate) struct PartonModel {
     rad_eta_sigma: f64,
 }
 
-/// Margin [GeV] kept between a parent's lowest mass and its daughters'.
+/// Margin (GeV) kept between a parent's lowest mass and its daughters'.
 const MASS_MARGIN: f64 = 1.0;
 
 impl PartonModel {

@@ -160,7 +160,7 @@ fn breit_wigner_quantiles_match_scipy_integration() {
     assert!((f(&bw["lo"]) - lo).abs() < 1e-9 && (f(&bw["hi"]) - hi).abs() < 1e-9);
     for (q, key) in [(0.25, "0.25"), (0.5, "0.5"), (0.75, "0.75")] {
         let want = f(&bw["quantiles"][key]);
-        let got = breit_wigner_mass(q, mass, width, lo, hi);
+        let got = breit_wigner_mass(q, mass, width, lo, hi).unwrap();
         assert!(
             (got - want).abs() < 1e-8,
             "quantile {q}: {got} vs scipy {want}"
@@ -169,18 +169,18 @@ fn breit_wigner_quantiles_match_scipy_integration() {
 }
 
 #[test]
-fn breit_wigner_stays_in_window_and_finite() {
+fn breit_wigner_stays_in_window_and_refuses_bad_input() {
     for i in 0..=1000 {
         let u = i as f64 / 1000.0;
-        let m = breit_wigner_mass(u, 91.0, 2.5, 60.0, 120.0);
+        let m = breit_wigner_mass(u, 91.0, 2.5, 60.0, 120.0).unwrap();
         assert!(m.is_finite() && (60.0..=120.0).contains(&m));
     }
-    assert_eq!(breit_wigner_mass(f64::NAN, 91.0, 2.5, 60.0, 120.0), 91.0);
-    assert_eq!(breit_wigner_mass(0.5, 91.0, 0.0, 60.0, 120.0), 91.0);
-    // A window entirely above the pole: every draw lies inside it.
-    let m = breit_wigner_mass(0.0, 91.0, 2.5, 95.0, 120.0);
-    assert!(
-        (m - 95.0).abs() < 1e-9,
-        "u = 0 maps to the lower edge, got {m}"
-    );
+    assert_eq!(breit_wigner_mass(f64::NAN, 91.0, 2.5, 60.0, 120.0), None);
+    assert_eq!(breit_wigner_mass(0.5, 91.0, 2.5, 60.0, f64::NAN), None);
+    assert_eq!(breit_wigner_mass(0.5, 91.0, -1.0, 60.0, 120.0), None);
+    assert_eq!(breit_wigner_mass(0.5, 91.0, 2.5, 120.0, 60.0), None);
+    assert_eq!(breit_wigner_mass(0.5, 91.0, 0.0, 60.0, 120.0), Some(91.0));
+    // A window entirely above the pole: u = 0 maps to its lower edge.
+    let m = breit_wigner_mass(0.0, 91.0, 2.5, 95.0, 120.0).unwrap();
+    assert!((m - 95.0).abs() < 1e-9, "got {m}");
 }
