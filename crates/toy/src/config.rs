@@ -400,8 +400,8 @@ pub struct Radiation {
     /// Lowest transverse momentum of a radiated gluon (GeV); the spectrum
     /// falls as pt⁻³ above it. Default 20.
     pub pt_min: f64,
-    /// Highest transverse momentum (GeV) (the spectrum is cut there).
-    /// Default 1000.
+    /// Highest transverse momentum (GeV): larger draws are set to this
+    /// value (a 4·10⁻⁴ fraction with the defaults). Default 1000.
     pub pt_max: f64,
     /// Width of the Gaussian pseudorapidity distribution. Default 1.8.
     pub eta_sigma: f64,

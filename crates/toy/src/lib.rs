@@ -42,7 +42,8 @@
 //! luminosities. The system's rapidity is Gaussian (σ = `rapidity_sigma`)
 //! and redrawn when the collider energy would be exceeded; its transverse
 //! momentum balances the radiation jets. Radiation: a Poisson number of
-//! gluons (`isr`), pt ∝ pt⁻³ from `pt_min`, Gaussian η. The production
+//! gluons (`isr`, mean 1, at most 12), pt ∝ pt⁻³ from `pt_min` (20 GeV)
+//! capped at `pt_max`, Gaussian η (σ = 1.8). The production
 //! angle in the pair frame and all decay angles are isotropic (no spin
 //! correlations).
 //!
@@ -83,8 +84,12 @@
 //! all within ΔR < 1.0 of it, becomes a fat jet with its four-momentum
 //! scaled by a smeared energy ratio (jet energy resolution, so the jet mass
 //! scales with the energy); the outermost qualifies (a contained top hides
-//! its W); |η| < 2.0. Objects failing acceptance are dropped, so some
-//! events lack objects. Objects are sorted by decreasing pt.
+//! its W); after smearing it must still have pt > 200 GeV and |η| < 2.0.
+//! Objects failing acceptance are dropped, so some events lack objects.
+//! Objects are sorted by decreasing pt.
+//!
+//! For mass-closure studies, [`signal_events`] gives `n` events of one
+//! partner at one mass in a single call.
 //!
 //! # Truth labels
 //! Exactly these labels are emitted (`S` is the side, see below):
