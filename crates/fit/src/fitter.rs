@@ -38,8 +38,8 @@ pub enum ConstraintMode {
 pub struct FitConfig {
     /// Soft or hard constraints.
     pub mode: ConstraintMode,
-    /// Trust-region iterations allowed per minimisation (per
-    /// augmented-Lagrangian pass in hard mode).
+    /// Trust-region iterations allowed per fit (summed over the
+    /// augmented-Lagrangian passes in hard mode).
     pub max_iterations: u32,
     /// Convergence: the Newton decrement gᵀH⁻¹g (twice the χ² decrease the
     /// next Newton step predicts; scale-free) must fall below this. 1e-10
@@ -54,12 +54,12 @@ pub struct FitConfig {
 }
 
 impl Default for FitConfig {
-    /// Hard constraints to 1 MeV, 100 iterations per pass, decrement
-    /// tolerance 1e-10, 12 passes, uncertainties on.
+    /// Hard constraints to 1 MeV, 150 iterations, decrement tolerance 1e-10,
+    /// 12 passes, uncertainties on.
     fn default() -> Self {
         FitConfig {
             mode: ConstraintMode::Hard,
-            max_iterations: 100,
+            max_iterations: 150,
             decrement_tolerance: 1e-10,
             hard_tolerance: 1e-3,
             max_passes: 12,
@@ -309,6 +309,13 @@ impl<S: Solver<KinematicChi2, FitState>> Solver<KinematicChi2, FitState> for Gra
 
 /// Initial trust-region radius in σ units.
 const INITIAL_RADIUS: f64 = 3.0;
+/// Hard mode: Newton-decrement tolerance of the intermediate passes.
+const PASS_DECREMENT: f64 = 1e-4;
+/// Hard mode: factor on ρ per augmented-Lagrangian pass.
+const PENALTY_GROWTH: f64 = 10.0;
+/// Hard mode: largest ρ as a multiple of 1/width² (stiffer only slows the
+/// Newton steps; the multipliers do the rest).
+const MAX_PENALTY: f64 = 1e6;
 
 enum Outcome {
     Converged,
@@ -367,7 +374,9 @@ impl KinematicFitter {
         let mut status;
         match self.config.mode {
             ConstraintMode::Soft => {
-                let (p, xn, it, outcome) = self.minimise(problem, x);
+                let tolerance = self.config.decrement_tolerance;
+                let (p, xn, it, outcome) =
+                    self.minimise(problem, x, tolerance, self.config.max_iterations);
                 problem = p;
                 x = xn;
                 iterations += it;
@@ -385,16 +394,32 @@ impl KinematicFitter {
                 let n_terms = problem.n_terms();
                 let mut lambda = [0.0; MAX_TERMS];
                 let mut rho = [0.0; MAX_TERMS];
-                for (t, r) in rho.iter_mut().enumerate().take(n_terms) {
+                let mut rho_max = [0.0; MAX_TERMS];
+                for t in 0..n_terms {
                     let w = problem.term_width(t);
-                    *r = 1.0 / (w * w);
+                    rho[t] = 1.0 / (w * w);
+                    rho_max[t] = MAX_PENALTY * rho[t];
                 }
                 status = FitStatus::ConstraintsNotMet;
+                // Intermediate passes only need an approximate minimum for
+                // the multiplier update; the last one is run to full
+                // tolerance.
+                let mut tight = false;
                 for _pass in 0..self.config.max_passes.max(1) {
                     for t in 0..n_terms {
                         problem.set_term_weights(t, 2.0 * lambda[t], rho[t]);
                     }
-                    let (p, xn, it, outcome) = self.minimise(problem, x);
+                    let tolerance = if tight {
+                        self.config.decrement_tolerance
+                    } else {
+                        self.config.decrement_tolerance.max(PASS_DECREMENT)
+                    };
+                    let budget = self.config.max_iterations.saturating_sub(iterations);
+                    if budget == 0 {
+                        status = FitStatus::IterationLimit;
+                        break;
+                    }
+                    let (p, xn, it, outcome) = self.minimise(problem, x, tolerance, budget);
                     problem = p;
                     x = xn;
                     iterations += it;
@@ -410,8 +435,12 @@ impl KinematicFitter {
                         Outcome::IterationLimit => status = FitStatus::IterationLimit,
                         Outcome::Converged => {
                             if problem.max_violation(&th) < self.config.hard_tolerance {
-                                status = FitStatus::Converged;
-                                break;
+                                if tight {
+                                    status = FitStatus::Converged;
+                                    break;
+                                }
+                                tight = true;
+                                continue;
                             }
                             status = FitStatus::ConstraintsNotMet;
                         }
@@ -419,7 +448,7 @@ impl KinematicFitter {
                     let c = problem.residuals(&th);
                     for t in 0..n_terms {
                         lambda[t] += rho[t] * c[t];
-                        rho[t] = (rho[t] * 10.0).min(1e8);
+                        rho[t] = (rho[t] * PENALTY_GROWTH).min(rho_max[t]);
                     }
                 }
             }
@@ -437,6 +466,8 @@ impl KinematicFitter {
         &self,
         problem: KinematicChi2,
         x0: Params,
+        tolerance: f64,
+        max_iterations: u32,
     ) -> (KinematicChi2, Params, u32, Outcome) {
         let backup = problem.clone();
         let solver = GradientStop {
@@ -444,10 +475,10 @@ impl KinematicFitter {
                 .with_radius(INITIAL_RADIUS)
                 .and_then(|t| t.with_max_radius(1e3))
                 .expect("radii > 0"),
-            tolerance: self.config.decrement_tolerance,
+            tolerance,
         };
         let run = Executor::new(problem, solver)
-            .configure(|s| s.param(x0).max_iters(u64::from(self.config.max_iterations)))
+            .configure(|s| s.param(x0).max_iters(u64::from(max_iterations)))
             .run();
         match run {
             Err(_) => (backup, x0, 0, Outcome::Failed),

@@ -24,91 +24,94 @@ pub type Params = SVector<f64, MAX_PARAMS>;
 /// to argmin's trust region: the exact analytic Hessian, plus µ·I only where
 /// that is needed to make it positive definite (away from the minimum; at a
 /// minimum the exact Hessian is positive definite and µ = 0, so Newton's
-/// quadratic convergence is kept). It carries its Cholesky factor, so the
+/// quadratic convergence is kept). It stores the leading n×n block (the
+/// padding entries act as the identity) and its Cholesky factor, so the
 /// dogleg step's `inv()` is a cheap view and `inv().dot(g)` two triangular
 /// solves. Shared behind an `Arc`: argmin moves its iteration state, which
 /// holds several Hessians, by value every iteration.
 ///
 /// ```
 /// use quarry_fit::HessianMatrix;
-/// let h = HessianMatrix::new(nalgebra::SMatrix::identity() * 2.0, 3);
-/// assert_eq!(h[(2, 2)], 2.0);
+/// let h = HessianMatrix::from_block(&[2.0, 0.0, 0.0, 2.0], 2);
+/// assert_eq!(h[(1, 1)], 2.0);
+/// assert_eq!(h[(5, 5)], 1.0); // padding
 /// assert_eq!(h.shift(), 0.0);
 /// ```
 #[derive(Clone, Debug, PartialEq)]
 pub struct HessianMatrix {
-    data: Arc<HessianData>,
+    /// Row-major n×n block followed by its row-major Cholesky factor.
+    data: Arc<[f64]>,
+    n: usize,
+    shift: f64,
     inverse: bool,
 }
 
-#[derive(Debug, PartialEq)]
-struct HessianData {
-    h: SMatrix<f64, MAX_PARAMS, MAX_PARAMS>,
-    /// Lower Cholesky factor of the leading n×n block (row-major).
-    chol: [[f64; MAX_PARAMS]; MAX_PARAMS],
-    n: usize,
-    shift: f64,
-}
+const ONE: f64 = 1.0;
+const ZERO: f64 = 0.0;
 
 impl HessianMatrix {
-    /// From a symmetric matrix whose leading `n`×`n` block is the Hessian
-    /// (the rest is padding and should be the identity). Adds the smallest
-    /// µ·I of the form 0 or 1e-8·2^k·max|H_ii| that makes the block
-    /// positive definite.
-    pub fn new(mut h: SMatrix<f64, MAX_PARAMS, MAX_PARAMS>, n: usize) -> Self {
-        let n = n.min(MAX_PARAMS);
-        let scale = (0..n).map(|i| h[(i, i)].abs()).fold(1e-12, f64::max);
+    /// From the row-major leading `n`×`n` block of a symmetric matrix.
+    /// Adds the smallest µ·I of the form 0 or 1e-8·2^k·max|H_ii| that makes
+    /// the block positive definite.
+    ///
+    /// # Panics
+    /// If `block` has fewer than n² entries or n > [`MAX_PARAMS`].
+    pub fn from_block(block: &[f64], n: usize) -> Self {
+        assert!(n <= MAX_PARAMS && block.len() >= n * n, "block too small");
+        let scale = (0..n).map(|i| block[i * n + i].abs()).fold(1e-12, f64::max);
         let mut shift = 0.0;
-        let mut chol = [[0.0; MAX_PARAMS]; MAX_PARAMS];
+        let mut chol = [0.0; MAX_PARAMS * MAX_PARAMS];
         for attempt in 0..80 {
-            if cholesky(&h, n, shift, &mut chol) {
+            if cholesky(block, n, shift, &mut chol) {
                 break;
             }
             shift = scale * 1e-8 * 2f64.powi(attempt);
         }
-        for i in 0..n {
-            h[(i, i)] += shift;
-        }
+        let data: Arc<[f64]> = (0..n * n)
+            .map(|k| {
+                let (i, j) = (k / n, k % n);
+                block[k] + if i == j { shift } else { 0.0 }
+            })
+            .chain(chol[..n * n].iter().copied())
+            .collect();
         HessianMatrix {
-            data: Arc::new(HessianData { h, chol, n, shift }),
+            data,
+            n,
+            shift,
             inverse: false,
         }
-    }
-    /// The matrix (with the shift applied).
-    pub fn matrix(&self) -> &SMatrix<f64, MAX_PARAMS, MAX_PARAMS> {
-        &self.data.h
     }
     /// The µ added to the diagonal (0 if the exact Hessian was positive
     /// definite).
     pub fn shift(&self) -> f64 {
-        self.data.shift
+        self.shift
+    }
+    /// Size of the stored block.
+    pub fn dim(&self) -> usize {
+        self.n
     }
 }
 
-/// Cholesky of the leading n×n block of h + shift·I into `l`; false if not
-/// positive definite (or not finite).
-fn cholesky(
-    h: &SMatrix<f64, MAX_PARAMS, MAX_PARAMS>,
-    n: usize,
-    shift: f64,
-    l: &mut [[f64; MAX_PARAMS]; MAX_PARAMS],
-) -> bool {
+/// Cholesky of the row-major n×n `h` + shift·I into row-major `l` (lower
+/// triangle; the diagonal stores 1/L_jj); false if not positive definite
+/// (or not finite).
+fn cholesky(h: &[f64], n: usize, shift: f64, l: &mut [f64]) -> bool {
     for j in 0..n {
-        let mut d = h[(j, j)] + shift;
+        let mut d = h[j * n + j] + shift;
         for k in 0..j {
-            d -= l[j][k] * l[j][k];
+            d -= l[j * n + k] * l[j * n + k];
         }
         if !(d > 0.0 && d.is_finite()) {
             return false;
         }
-        let djj = d.sqrt();
-        l[j][j] = djj;
+        let inv = 1.0 / d.sqrt();
+        l[j * n + j] = inv; // the diagonal holds 1/L_jj: solves multiply
         for i in j + 1..n {
-            let mut v = h[(i, j)];
+            let mut v = h[i * n + j];
             for k in 0..j {
-                v -= l[i][k] * l[j][k];
+                v -= l[i * n + k] * l[j * n + k];
             }
-            l[i][j] = v / djj;
+            l[i * n + j] = v * inv;
         }
     }
     true
@@ -116,33 +119,42 @@ fn cholesky(
 
 impl Index<(usize, usize)> for HessianMatrix {
     type Output = f64;
-    fn index(&self, ij: (usize, usize)) -> &f64 {
-        &self.data.h[ij]
+    /// Entry (i, j) of the model Hessian (padding: identity).
+    fn index(&self, (i, j): (usize, usize)) -> &f64 {
+        if i < self.n && j < self.n {
+            &self.data[i * self.n + j]
+        } else if i == j {
+            &ONE
+        } else {
+            &ZERO
+        }
     }
 }
 
 impl ArgminDot<Params, Params> for HessianMatrix {
     /// H·v, or H⁻¹·v for the view returned by `inv()`.
     fn dot(&self, v: &Params) -> Params {
-        if !self.inverse {
-            return self.data.h * v;
-        }
-        let d = &self.data;
-        let l = &d.chol;
+        let n = self.n;
         let mut x = *v; // padding entries: identity
-        for i in 0..d.n {
-            let mut s = x[i];
-            for k in 0..i {
-                s -= l[i][k] * x[k];
+        if !self.inverse {
+            let h = &self.data[..n * n];
+            for (i, row) in h.chunks_exact(n).enumerate() {
+                x[i] = row.iter().zip(v.iter()).map(|(a, b)| a * b).sum();
             }
-            x[i] = s / l[i][i];
+            return x;
         }
-        for i in (0..d.n).rev() {
+        let l = &self.data[n * n..2 * n * n];
+        for i in 0..n {
+            let row = &l[i * n..i * n + i];
+            let s: f64 = row.iter().zip(x.iter()).map(|(a, b)| a * b).sum();
+            x[i] = (x[i] - s) * l[i * n + i];
+        }
+        for i in (0..n).rev() {
             let mut s = x[i];
-            for k in i + 1..d.n {
-                s -= l[k][i] * x[k];
+            for k in i + 1..n {
+                s -= l[k * n + i] * x[k];
             }
-            x[i] = s / l[i][i];
+            x[i] = s * l[i * n + i];
         }
         x
     }
@@ -153,6 +165,8 @@ impl ArgminInv<HessianMatrix> for HessianMatrix {
     fn inv(&self) -> Result<HessianMatrix, argmin_math::Error> {
         Ok(HessianMatrix {
             data: Arc::clone(&self.data),
+            n: self.n,
+            shift: self.shift,
             inverse: !self.inverse,
         })
     }
@@ -765,33 +779,48 @@ impl KinematicChi2 {
     /// positive-definite shift of [`HessianMatrix`]); padding rows are the
     /// identity.
     pub fn exact_hessian(&self, x: &Params) -> SMatrix<f64, MAX_PARAMS, MAX_PARAMS> {
-        self.eval_exact(x).2
+        let mut block = [0.0; MAX_PARAMS * MAX_PARAMS];
+        self.eval_exact(x, &mut block);
+        let n = self.0.n_params;
+        SMatrix::from_fn(|i, j| {
+            if i < n && j < n {
+                block[i * n + j]
+            } else if i == j {
+                1.0
+            } else {
+                0.0
+            }
+        })
     }
 
     fn eval_internal(&self, x: &Params) -> (f64, Params, HessianMatrix) {
-        let (f, g, h) = self.eval_exact(x);
-        (f, g, HessianMatrix::new(h, self.0.n_params))
+        let mut block = [0.0; MAX_PARAMS * MAX_PARAMS];
+        let (f, g) = self.eval_exact(x, &mut block);
+        (f, g, HessianMatrix::from_block(&block, self.0.n_params))
     }
 
-    /// Cost, gradient and exact Hessian in internal parameters x.
-    fn eval_exact(&self, x: &Params) -> (f64, Params, SMatrix<f64, MAX_PARAMS, MAX_PARAMS>) {
+    /// Cost and gradient in internal parameters x; the exact Hessian's
+    /// leading n×n block goes row-major into `block`.
+    fn eval_exact(&self, x: &Params, block: &mut [f64; MAX_PARAMS * MAX_PARAMS]) -> (f64, Params) {
         let th = self.to_physical(x);
         let ev = self.eval_physical(&th, true);
         let mut g = Params::zeros();
-        let mut h = SMatrix::<f64, MAX_PARAMS, MAX_PARAMS>::identity();
+        let n = self.0.n_params;
         if !ev.f.is_finite() {
-            return (f64::INFINITY, g, h);
+            for i in 0..n {
+                block[i * n + i] = 1.0;
+            }
+            return (f64::INFINITY, g);
         }
         let (d1, d2) = self.jacobian(&th);
-        let n = self.0.n_params;
         for i in 0..n {
             g[i] = d1[i] * ev.g[i];
             for j in 0..n {
-                h[(i, j)] = d1[i] * d1[j] * ev.h[i][j];
+                block[i * n + j] = d1[i] * d1[j] * ev.h[i][j];
             }
-            h[(i, i)] += d2[i] * ev.g[i];
+            block[i * n + i] += d2[i] * ev.g[i];
         }
-        (ev.f, g, h)
+        (ev.f, g)
     }
 }
 

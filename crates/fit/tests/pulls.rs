@@ -123,6 +123,7 @@ fn run_pulls(scale: f64, events: usize, seed: u64) -> Summary {
     let mut pulls: Vec<Vec<f64>> = (0..7).map(|_| Vec::with_capacity(events)).collect();
     let mut probabilities = Vec::with_capacity(events);
     let mut worst_violation: f64 = 0.0;
+    let mut failed = 0;
     for _ in 0..events {
         let truth = PairEvent::generate_ttbar(30.0, &mut rng);
         let measured = smear(&truth, &model, &mut rng);
@@ -142,8 +143,12 @@ fn run_pulls(scale: f64, events: usize, seed: u64) -> Summary {
         let input = pair_input(&measured, pz, None, true);
         assert_eq!(input.ndf(), 3);
         let fit = fitter.fit(&input);
-        assert!(fit.converged(), "{:?}", fit.status);
         assert_eq!(fit.ndf, 3);
+        if !fit.converged() {
+            // A status, never a panic: counted, and bounded below.
+            failed += 1;
+            continue;
+        }
         worst_violation = worst_violation.max(fit.max_violation);
         probabilities.push(fit.probability);
         for (k, jet) in measured.jets.iter().enumerate() {
@@ -159,6 +164,8 @@ fn run_pulls(scale: f64, events: usize, seed: u64) -> Summary {
         pulls[5].push((nu.px() - measured.met[0]) / (measured.met_cov[0] - sig[0] * sig[0]).sqrt());
         pulls[6].push((nu.py() - measured.met[1]) / (measured.met_cov[2] - sig[1] * sig[1]).sqrt());
     }
+    // At most 0.1 % of right-assignment fits may stop unconverged.
+    assert!(failed * 1000 <= events, "{failed} of {events} fits did not converge");
     let mut means = [0.0; 7];
     let mut widths = [0.0; 7];
     for (k, p) in pulls.iter().enumerate() {
