@@ -409,70 +409,62 @@ fn right_wrong_plot(
     } else {
         format!("fraction of events / {}", format_width(binning.width))
     };
+    let data = RightWrong {
+        caption,
+        x_desc,
+        y_desc: &y_desc,
+        ymax: ymax.max(1e-3),
+        binning,
+        h_right: &h_right,
+        h_wrong: &h_wrong,
+        n_right: right.len(),
+        n_wrong: wrong.len(),
+        position,
+    };
     let root = SVGBackend::new(path, PLOT_SIZE).into_drawing_area();
     let result = if binning.log {
         let x: LogCoord<f64> = (binning.edge(0)..binning.hi()).log_scale().into();
-        styled_chart(&root, caption, x, 0.0..ymax.max(1e-3), x_desc, &y_desc).and_then(|mut c| {
-            draw_right_wrong(
-                &mut c,
-                &binning,
-                &h_right,
-                &h_wrong,
-                right.len(),
-                wrong.len(),
-                position,
-            )
-        })
+        draw_right_wrong(&root, x, &data)
     } else {
-        let x = RangedCoordf64::from(binning.lo..binning.hi());
-        styled_chart(&root, caption, x, 0.0..ymax.max(1e-3), x_desc, &y_desc).and_then(|mut c| {
-            draw_right_wrong(
-                &mut c,
-                &binning,
-                &h_right,
-                &h_wrong,
-                right.len(),
-                wrong.len(),
-                position,
-            )
-        })
+        draw_right_wrong(&root, RangedCoordf64::from(binning.lo..binning.hi()), &data)
     };
     result
         .and_then(|()| root.present().map_err(Into::into))
         .map_err(|e| plot_error(path)(&e))
 }
 
-#[allow(clippy::too_many_arguments)]
-fn draw_right_wrong<'a, 'b: 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut Chart<'a, 'b, X>,
-    binning: &Binning,
-    h_right: &[f64],
-    h_wrong: &[f64],
+/// Everything a right-vs-wrong plot draws.
+struct RightWrong<'s> {
+    caption: &'s str,
+    x_desc: &'s str,
+    y_desc: &'s str,
+    ymax: f64,
+    binning: Binning,
+    h_right: &'s [f64],
+    h_wrong: &'s [f64],
     n_right: usize,
     n_wrong: usize,
     position: SeriesLabelPosition,
-) -> PlotResult {
-    if n_wrong > 0 {
-        draw_hist(
-            chart,
-            binning,
-            h_wrong,
-            WRONG,
-            Some(WRONG),
-            format!("wrong assignment ({n_wrong} ev.)"),
-        )?;
+}
+
+fn draw_right_wrong<X>(
+    root: &DrawingArea<SVGBackend<'_>, Shift>,
+    x: X,
+    d: &RightWrong<'_>,
+) -> PlotResult
+where
+    X: Ranged<ValueType = f64> + ValueFormatter<f64>,
+{
+    let mut chart = styled_chart(root, d.caption, x, 0.0..d.ymax, d.x_desc, d.y_desc)?;
+    if d.n_wrong > 0 {
+        let label = format!("wrong assignment ({} ev.)", d.n_wrong);
+        draw_hist(&mut chart, &d.binning, d.h_wrong, WRONG, Some(WRONG), label)?;
     }
-    if n_right > 0 {
-        draw_hist(
-            chart,
-            binning,
-            h_right,
-            RIGHT,
-            None,
-            format!("right assignment ({n_right} ev.)"),
-        )?;
+    if d.n_right > 0 {
+        let label = format!("right assignment ({} ev.)", d.n_right);
+        draw_hist(&mut chart, &d.binning, d.h_right, RIGHT, None, label)?;
     }
-    legend(chart, position)
+    legend(&mut chart, d.position.clone())
 }
 
 /// χ² of the chosen assignment for right (teal line) and wrong (rust area)
