@@ -29,7 +29,29 @@ impl DoglegStep {
     }
 
     /// The step minimising gᵀp + ½pᵀHp along the dogleg path within |p| ≤ Δ.
+    /// A step on the boundary is rescaled until its computed norm equals Δ
+    /// to rounding: argmin's `TrustRegion` only enlarges the radius when
+    /// |‖p‖ − Δ| ≤ 10 ε (absolute), so a boundary step off by a few ulps
+    /// would freeze the radius and slow the fit to a crawl.
     pub(crate) fn step(&self, g: &Params, h: &HessianMatrix) -> Params {
+        let p = self.raw_step(g, h);
+        let delta = self.radius;
+        let norm = p.norm();
+        if norm > 0.0 && (norm - delta).abs() <= 1e-9 * delta {
+            let mut q = p * (delta / norm);
+            for _ in 0..2 {
+                let nq = q.norm();
+                if nq == delta {
+                    break;
+                }
+                q *= delta / nq;
+            }
+            return q;
+        }
+        p
+    }
+
+    fn raw_step(&self, g: &Params, h: &HessianMatrix) -> Params {
         let delta = self.radius;
         let h_inv = h.inv().expect("view, infallible");
         let pb = -h_inv.dot(g);

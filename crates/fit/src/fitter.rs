@@ -309,6 +309,10 @@ impl<S: Solver<KinematicChi2, FitState>> Solver<KinematicChi2, FitState> for Gra
 
 /// Initial trust-region radius in σ units.
 const INITIAL_RADIUS: f64 = 3.0;
+/// Largest trust-region radius in σ units: small enough that argmin's
+/// absolute 10 ε test for a boundary step (which decides whether the radius
+/// may grow) still resolves the step norm.
+const MAX_RADIUS: f64 = 8.0;
 /// Hard mode: Newton-decrement tolerance of the intermediate passes.
 const PASS_DECREMENT: f64 = 1e-4;
 /// Hard mode: factor on ρ per augmented-Lagrangian pass.
@@ -473,7 +477,7 @@ impl KinematicFitter {
         let solver = GradientStop {
             inner: TrustRegion::new(DoglegStep::new())
                 .with_radius(INITIAL_RADIUS)
-                .and_then(|t| t.with_max_radius(1e3))
+                .and_then(|t| t.with_max_radius(MAX_RADIUS))
                 .expect("radii > 0"),
             tolerance,
         };
