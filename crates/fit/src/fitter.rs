@@ -45,7 +45,7 @@ pub struct FitConfig {
     /// next Newton step predicts; scale-free) must fall below this. 1e-10
     /// puts the parameters within ~1e-5 σ of the minimum.
     pub decrement_tolerance: f64,
-    /// Hard mode: every |m − M| must end below this [GeV].
+    /// Hard mode: every |m − M| must end below this (GeV).
     pub hard_tolerance: f64,
     /// Hard mode: most augmented-Lagrangian passes.
     pub max_passes: u32,
@@ -90,9 +90,9 @@ pub enum FitStatus {
 /// A fitted common mass with its uncertainty.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct CommonMass {
-    /// Fitted value [GeV].
+    /// Fitted value (GeV).
     pub value: f64,
-    /// Uncertainty [GeV]: √C_MM of the fit covariance (see the crate docs);
+    /// Uncertainty (GeV): √C_MM of the fit covariance (see the crate docs);
     /// 0 when not computed.
     pub sigma: f64,
 }
@@ -116,7 +116,7 @@ pub struct FitResult {
     pub ndf: u32,
     /// χ² probability P(χ²_ndf ≥ chi2).
     pub probability: f64,
-    /// Hard mode: largest |m − M| over constraints at the end [GeV]
+    /// Hard mode: largest |m − M| over constraints at the end (GeV)
     /// (also filled in soft mode, where it is the Gaussian's residual).
     pub max_violation: f64,
     n_objects: u8,
@@ -153,11 +153,11 @@ impl FitResult {
     pub fn neutrino(&self) -> Option<FourMomentum> {
         self.neutrino
     }
-    /// Uncertainties of the fitted neutrino's (px, py, pz) [GeV].
+    /// Uncertainties of the fitted neutrino's (px, py, pz) (GeV).
     pub fn neutrino_sigmas(&self) -> [f64; 3] {
         self.neutrino_sigmas
     }
-    /// Fitted masses of the composites, in input order [GeV].
+    /// Fitted masses of the composites, in input order (GeV).
     pub fn composite_masses(&self) -> &[f64] {
         &self.composite_masses[..self.n_composites as usize]
     }
@@ -330,10 +330,10 @@ enum Outcome {
 /// The kinematic fitter: a resolution model and settings. Build once, call
 /// [`fit`](Self::fit) per assignment.
 ///
-/// Every per-fit structure is a fixed-capacity value on the stack (the
-/// problem, the parameter vector, the 16×16 Hessian), so a fit allocates
-/// only inside argmin's bookkeeping and, when uncertainties are on, for
-/// the small covariance solve.
+/// Per-fit inputs and results are fixed-capacity values; a fit allocates the
+/// boxed problem, one shared Hessian block per trust-region iteration,
+/// argmin's bookkeeping and, when uncertainties are on, the small
+/// covariance solve.
 ///
 /// ```
 /// use quarry_fit::{Composite, Constraint, FitInput, KinematicFitter, Measured};

@@ -35,11 +35,11 @@ pub enum MeasuredKind {
 /// measured object beyond rounding), and `sigma`, if given, finite and > 0.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Measured {
-    /// The measured four-momentum [GeV].
+    /// The measured four-momentum (GeV).
     pub p4: FourMomentum,
     /// The kind of measurement.
     pub kind: MeasuredKind,
-    /// The measured quantity's σ [GeV] (E for a jet, pt for a lepton) if the
+    /// The measured quantity's σ (GeV) (E for a jet, pt for a lepton) if the
     /// input knows it (e.g. a per-object calibration); `None` evaluates the
     /// resolution model at the measured value.
     pub sigma: Option<f64>,
@@ -61,7 +61,7 @@ impl Measured {
             sigma: None,
         }
     }
-    /// The same object with an explicit σ [GeV] of its measured quantity.
+    /// The same object with an explicit σ (GeV) of its measured quantity.
     ///
     /// ```
     /// use quarry_fit::Measured;
@@ -99,11 +99,11 @@ impl Measured {
 /// the MET covariance `[xx, xy, yy]` positive definite.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct NeutrinoStart {
-    /// Starting `[px, py, pz]` [GeV], e.g. MET and one W-mass pz solution.
+    /// Starting `[px, py, pz]` (GeV), e.g. MET and one W-mass pz solution.
     pub p3: [f64; 3],
-    /// Measured MET `[x, y]` [GeV].
+    /// Measured MET `[x, y]` (GeV).
     pub met: [f64; 2],
-    /// MET covariance `[xx, xy, yy]` [GeV²], e.g. from
+    /// MET covariance `[xx, xy, yy]` (GeV²), e.g. from
     /// `quarry_resolution::ResolutionModel::met_covariance`.
     pub met_cov: [f64; 3],
 }
@@ -188,9 +188,9 @@ pub enum Constraint {
     Mass {
         /// Index into [`FitInput::composites`].
         composite: usize,
-        /// Target mass [GeV].
+        /// Target mass (GeV).
         mass: f64,
-        /// Gaussian width for soft mode [GeV], e.g. the particle's PDG width.
+        /// Gaussian width for soft mode (GeV), e.g. the particle's PDG width.
         width: f64,
     },
     /// m(a) = m(b) = M with M a free common mass fitted alongside.
@@ -199,7 +199,7 @@ pub enum Constraint {
         a: usize,
         /// Second composite.
         b: usize,
-        /// Gaussian width of each m = M term in soft mode [GeV].
+        /// Gaussian width of each m = M term in soft mode (GeV).
         width: f64,
     },
 }

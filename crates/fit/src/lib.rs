@@ -12,9 +12,8 @@
 //! implementing argmin's `CostFunction`, `Gradient` and `Hessian` with
 //! analytic derivatives, and every per-fit value is an inline, fixed-capacity
 //! `Copy` type ([`FitInput`], [`FitResult`], a 16-entry parameter vector), so
-//! the fit runs thousands of times per event batch without heap traffic and
-//! without knowing anything about hypotheses: the pipeline converts a search
-//! result into a [`FitInput`].
+//! inputs and results cost no allocation and the fit knows nothing about
+//! hypotheses: the pipeline converts a search result into a [`FitInput`].
 //!
 //! # The χ² (see [`KinematicChi2`] for the exact formula)
 //! - **Measured quantities**: each jet's energy (σ(E) from the calorimeter
@@ -54,10 +53,23 @@
 //! 5. ndf = constraint equations − unmeasured parameters ([`FitInput::ndf`]);
 //!    probability from [`chi2_survival`].
 //!
-//! Limits: one neutrino at most; at most [`MAX_OBJECTS`] objects; resolutions
-//! are evaluated at the measured values and are Gaussian; no
-//! MET–jet correlation; the fit finds the local minimum near its start (run it
-//! once per neutrino pz solution if both matter).
+//! Limits and assumptions:
+//! - one neutrino at most; at most [`MAX_OBJECTS`] objects, [`MAX_COMPOSITES`]
+//!   composites, [`MAX_CONSTRAINTS`] constraints, [`MAX_COMMON_MASSES`] free
+//!   common masses;
+//! - resolutions are Gaussian and, unless [`Measured::sigma`] is given,
+//!   evaluated at the *measured* value. On toys smeared at the true value this
+//!   shifts the pulls of low-energy jets by O(σ/E) ≈ 0.1;
+//! - no MET–jet correlation (MET is an independent measurement of p_T,ν);
+//! - the fit finds the local minimum near its start: run it once per
+//!   neutrino pz solution if both matter;
+//! - the pulls are unbiased in the linear regime; at the default resolutions
+//!   the leptonic side of tt̄ → ℓ+jets shows pull means of about −0.07
+//!   (b_lep) and −0.17 (lepton pt) from the nonlinear constraints with the
+//!   unmeasured pz (they scale with the resolution; see `tests/pulls.rs`);
+//! - a hard fit takes ~15 trust-region iterations for a right assignment and
+//!   ~25–30 for a wrong one; a few per mille stop at the iteration limit
+//!   (status [`FitStatus::IterationLimit`]).
 //!
 //! ```
 //! use quarry_fit::{Composite, Constraint, FitInput, KinematicFitter, Measured, NeutrinoStart};

@@ -175,7 +175,7 @@ impl ArgminInv<HessianMatrix> for HessianMatrix {
 /// Most constraint terms: a `Mass` constraint gives one, an `EqualMass` two.
 pub const MAX_TERMS: usize = 2 * MAX_CONSTRAINTS;
 
-/// Neutrino mass² [GeV²] used in E_ν = sqrt(|p|² + ε²): a regulator that
+/// Neutrino mass² (GeV²) used in E_ν = sqrt(|p|² + ε²): a regulator that
 /// keeps E_ν differentiable at p = 0, far below any resolution.
 pub const NEUTRINO_MASS2_REGULATOR: f64 = 1e-12;
 
@@ -411,7 +411,7 @@ impl KinematicChi2 {
         }
     }
 
-    /// Width of term `t` [GeV].
+    /// Width of term `t` (GeV).
     pub(crate) fn term_width(&self, t: usize) -> f64 {
         self.0.terms[t].width
     }
@@ -510,7 +510,7 @@ impl KinematicChi2 {
         sums
     }
 
-    /// Masses of all composites [GeV] at internal parameters `x` (m² < 0
+    /// Masses of all composites (GeV) at internal parameters `x` (m² < 0
     /// gives −√(−m²), as `FourMomentum::m`).
     pub fn composite_masses(&self, x: &Params) -> [f64; MAX_COMPOSITES] {
         let th = self.to_physical(x);
@@ -522,7 +522,7 @@ impl KinematicChi2 {
         m
     }
 
-    /// Largest |m_t − M_t| over all constraint terms [GeV] at θ.
+    /// Largest |m_t − M_t| over all constraint terms (GeV) at θ.
     pub(crate) fn max_violation(&self, th: &[f64; MAX_PARAMS]) -> f64 {
         let sums = self.composite_sums(th);
         let mut worst: f64 = 0.0;
@@ -534,7 +534,7 @@ impl KinematicChi2 {
         worst
     }
 
-    /// Constraint residuals c_t [GeV] at θ.
+    /// Constraint residuals c_t (GeV) at θ.
     pub(crate) fn residuals(&self, th: &[f64; MAX_PARAMS]) -> [f64; MAX_TERMS] {
         let sums = self.composite_sums(th);
         let mut c = [0.0; MAX_TERMS];
