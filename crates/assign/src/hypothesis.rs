@@ -13,7 +13,7 @@ use crate::{MAX_COMPOSITES, MAX_CONSTRAINTS, MAX_GROUP, MAX_JETS, MAX_ROLES};
 /// typical large-radius jet, common practice.
 pub const DEFAULT_LARGE_JET_OVERLAP_DR: f64 = 1.0;
 
-/// Smallest σ [GeV] a relative equal-mass width may produce; keeps the term
+/// Smallest σ (GeV) a relative equal-mass width may produce; keeps the term
 /// finite when both masses are near zero.
 pub const MIN_RELATIVE_SIGMA: f64 = 1.0e-6;
 
@@ -165,9 +165,9 @@ pub enum RoleKind {
     },
     /// A large-radius jet whose mass lies in `[mass_min, mass_max]` GeV.
     LargeJet {
-        /// Lower edge of the mass window [GeV].
+        /// Lower edge of the mass window (GeV).
         mass_min: f64,
-        /// Upper edge of the mass window [GeV].
+        /// Upper edge of the mass window (GeV).
         mass_max: f64,
         /// If this role is the `or_large_jet` alternative of a composite, that
         /// composite's index: the role is then optional, and when filled the
@@ -240,7 +240,7 @@ pub enum ConstraintKind {
     Mass {
         /// Composite index.
         composite: usize,
-        /// Target mass [GeV].
+        /// Target mass (GeV).
         target: f64,
     },
     /// The two composites should have equal masses.
@@ -267,7 +267,7 @@ pub struct Constraint {
 }
 
 impl Constraint {
-    /// σ [GeV] given the composite masses (indexed like
+    /// σ (GeV) given the composite masses (indexed like
     /// [`Hypothesis::composites`]).
     #[inline]
     pub fn sigma(&self, masses: &[f64]) -> f64 {

@@ -269,7 +269,7 @@ impl RankedAssignment {
         self.composite_p4s().get(c).copied().unwrap_or_default()
     }
 
-    /// Mass of composite `c` [GeV] (see `FourMomentum::m` for the sign
+    /// Mass of composite `c` (GeV) (see `FourMomentum::m` for the sign
     /// convention of space-like sums).
     pub fn composite_mass(&self, c: usize) -> f64 {
         self.composite_p4(c).m()
@@ -939,6 +939,21 @@ pub fn search_all(
         .collect())
 }
 
+/// Invariant mass from `E² − |p|²` with one square root (the search's
+/// innermost operation). `FourMomentum::m` takes a second root to factor
+/// `(E − |p|)(E + |p|)` for precision on nearly massless vectors; composites
+/// here are W, top and heavier systems, for which the direct form loses at
+/// most ~1e-13 relatively. Same sign convention as `FourMomentum::m`.
+#[inline]
+fn fast_mass(p: &FourMomentum) -> f64 {
+    let m2 = p.e() * p.e() - (p.px() * p.px() + p.py() * p.py() + p.pz() * p.pz());
+    if m2 >= 0.0 {
+        m2.sqrt()
+    } else {
+        -(-m2).sqrt()
+    }
+}
+
 /// Saved occupancy, restored after a branch.
 type Saved = (u64, u64, u32, u32);
 
@@ -1287,7 +1302,7 @@ impl Workspace {
                 p += self.comp_p4[j];
             }
             self.comp_p4[c] = p;
-            self.comp_m[c] = p.m();
+            self.comp_m[c] = fast_mass(&p);
         }
         let cons = hyp.constraints();
         for &k in &step.close_cons {
