@@ -1,7 +1,7 @@
 //! Hypotheses shipped with quarry, as editable TOML.
 //!
 //! Each preset is a `.toml` file under `crates/assign/presets/`, compiled into
-//! the binary with `include_str!`. Print one with [`toml`], edit it, and load
+//! the binary with `include_str!`. Print one with [`toml()`], edit it, and load
 //! the edited file with [`crate::Hypothesis::from_toml`]. Each file's header
 //! comment states the physics it targets and where its widths come from
 //! (typical resolution-dominated values, from memory).
