@@ -2,7 +2,7 @@
 //! streams CSV events in, and result rows out.
 //!
 //! Subcommands: `reco` (reconstruct), `presets list|show` (built-in
-//! hypotheses), `generate` (toy events). Exit codes are listed in
+//! hypotheses), `generate` (toy events), `eval` (evaluation on simulation). Exit codes are listed in
 //! `quarry reco --help` and docs/cli.md.
 
 use std::process::ExitCode;
@@ -29,6 +29,7 @@ fn main() -> ExitCode {
         Command::Reco(args) => cli::reco::run(&args),
         Command::Presets(cmd) => cli::presets::run(&cmd),
         Command::Generate(args) => cli::generate::run(&args),
+        Command::Eval(args) => cli::eval::run(&args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -189,7 +189,7 @@ impl Row {
             },
             fit_chi2: fitted.and_then(|f| chi2(f.chi2)),
             fit_ndf: fitted.map(|f| f.ndf),
-            fit_prob: fitted.and_then(|f| chi2(f.probability)),
+            fit_prob: fitted.and_then(|f| significant(f.probability)),
             fit_mass: common.and_then(|c| gev(c.value)),
             fit_mass_err: common.and_then(|c| gev(c.sigma)),
             truth_match: r.truth.map(|t| u8::from(t.all())),
@@ -226,6 +226,15 @@ pub fn chi2(x: f64) -> Option<f64> {
     round_to(x, 1e6)
 }
 
+/// Rounds to 6 significant digits (for probabilities, which may be tiny);
+/// `None` if not finite.
+pub fn significant(x: f64) -> Option<f64> {
+    if !x.is_finite() {
+        return None;
+    }
+    format!("{x:.5e}").parse().ok()
+}
+
 fn round_to(x: f64, scale: f64) -> Option<f64> {
     if !x.is_finite() {
         return None;
@@ -250,5 +259,7 @@ mod tests {
         assert_eq!(gev(f64::NAN), None);
         assert_eq!(chi2(f64::INFINITY), None);
         assert_eq!(chi2(1.23456789), Some(1.234568));
+        assert_eq!(significant(1.234567e-9), Some(1.23457e-9));
+        assert_eq!(significant(f64::NAN), None);
     }
 }

@@ -744,15 +744,15 @@ fn search_status(s: &SearchStatus) -> (Status, String) {
         SearchStatus::Found => (Status::Ok, String::new()),
         SearchStatus::TooFewJets { needed, available } => (
             Status::TooFewJets,
-            format!("needs {needed} jets, has {available}"),
+            format!("needs {needed} jet(s), has {available}"),
         ),
         SearchStatus::TooFewLeptons { needed, available } => (
             Status::TooFewLeptons,
-            format!("needs {needed} leptons, has {available}"),
+            format!("needs {needed} lepton(s), has {available}"),
         ),
         SearchStatus::TooFewLargeJets { needed, available } => (
             Status::TooFewLargeJets,
-            format!("needs {needed} large-radius jets, has {available}"),
+            format!("needs {needed} large-radius jet(s), has {available}"),
         ),
         SearchStatus::NeutrinoFailed(e) => (Status::NeutrinoFailed, e.to_string()),
         SearchStatus::NoValidAssignment => (Status::NoValidAssignment, String::new()),

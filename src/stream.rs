@@ -90,8 +90,13 @@ impl FromStr for Shard {
 
 /// Maps `items` through `work` in parallel, `chunk` items at a time, and
 /// hands every result to `sink` **in input order**, whatever the number of
-/// threads. At most one chunk of items and one of results are held at once,
-/// so memory stays bounded on endless streams.
+/// threads.
+///
+/// Reading overlaps with work: a separate thread pulls `items` (e.g. parses
+/// CSV) into the next chunk while the current chunk is processed on the
+/// rayon pool the caller runs in and its results are handed to `sink` on
+/// the calling thread. At most three chunks exist at once (being read,
+/// queued, being processed), so memory stays bounded on endless streams.
 ///
 /// `init` makes per-thread state for `work` (e.g. a [`crate::Worker`]); it
 /// may be called several times per chunk, so it should be cheap relative to
@@ -99,7 +104,8 @@ impl FromStr for Shard {
 ///
 /// `items` yields `Result`s: the first `Err` stops reading; the results of
 /// the items before it are still delivered, then the error is returned.
-/// An error from `sink` stops the run and is returned.
+/// An error from `sink` stops the run (reading stops at the end of the
+/// chunk being read) and is returned.
 ///
 /// ```
 /// use quarry::stream::ordered_chunked_map;
@@ -117,43 +123,60 @@ pub fn ordered_chunked_map<T, R, E, St, I, N, W, S>(
 ) -> Result<(), E>
 where
     I: IntoIterator<Item = Result<T, E>>,
+    I::IntoIter: Send,
     T: Send,
     R: Send,
+    E: Send,
     N: Fn() -> St + Sync,
     W: Fn(&mut St, T) -> R + Sync,
     S: FnMut(R) -> Result<(), E>,
 {
     let chunk = chunk.max(1);
-    let mut items = items.into_iter();
-    let mut buffer: Vec<T> = Vec::with_capacity(chunk);
-    let mut results: Vec<R> = Vec::with_capacity(chunk);
-    loop {
-        let mut failure = None;
-        while buffer.len() < chunk {
-            match items.next() {
-                Some(Ok(t)) => buffer.push(t),
-                Some(Err(e)) => {
-                    failure = Some(e);
-                    break;
+    let items = items.into_iter();
+    std::thread::scope(|scope| {
+        // One chunk may wait in the channel while the reader fills the next.
+        let (tx, rx) = std::sync::mpsc::sync_channel::<(Vec<T>, Option<E>)>(1);
+        scope.spawn(move || {
+            let mut items = items;
+            loop {
+                let mut buffer = Vec::with_capacity(chunk);
+                let mut failure = None;
+                while buffer.len() < chunk {
+                    match items.next() {
+                        Some(Ok(t)) => buffer.push(t),
+                        Some(Err(e)) => {
+                            failure = Some(e);
+                            break;
+                        }
+                        None => break,
+                    }
                 }
-                None => break,
+                let last = failure.is_some() || buffer.len() < chunk;
+                if buffer.is_empty() && failure.is_none() {
+                    return;
+                }
+                // A closed channel means the consumer stopped: stop reading.
+                if tx.send((buffer, failure)).is_err() || last {
+                    return;
+                }
+            }
+        });
+        let mut results: Vec<R> = Vec::with_capacity(chunk);
+        for (mut buffer, failure) in rx {
+            // `collect_into_vec` keeps input order and reuses the allocation.
+            buffer
+                .par_drain(..)
+                .map_init(&init, &work)
+                .collect_into_vec(&mut results);
+            for r in results.drain(..) {
+                sink(r)?;
+            }
+            if let Some(e) = failure {
+                return Err(e);
             }
         }
-        if buffer.is_empty() && failure.is_none() {
-            return Ok(());
-        }
-        // `collect_into_vec` keeps input order and reuses the allocation.
-        buffer
-            .par_drain(..)
-            .map_init(&init, &work)
-            .collect_into_vec(&mut results);
-        for r in results.drain(..) {
-            sink(r)?;
-        }
-        if let Some(e) = failure {
-            return Err(e);
-        }
-    }
+        Ok(())
+    })
 }
 
 #[cfg(test)]

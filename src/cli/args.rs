@@ -53,6 +53,56 @@ pub enum Command {
     /// Write toy events (fictional 14 TeV run) with truth labels as CSV.
     #[command(after_help = GENERATE_HELP)]
     Generate(GenerateArgs),
+    /// Evaluate reconstruction output on simulation: right-assignment
+    /// fractions, mass resolution, plots.
+    #[command(after_help = EVAL_HELP)]
+    Eval(EvalArgs),
+}
+
+const EVAL_HELP: &str = concat!(
+    "Examples:\n",
+    "  quarry eval -s T1000@1000=t1000-reco.csv -s ttbar=tt-reco.csv -o summary.csv --plots plots/\n",
+    "  # Markdown table of right-assignment fraction and mass resolution\n",
+    "  quarry eval -s T600@600=a.csv -s T1000@1000=b.csv -o /dev/null --table -\n\n",
+    "Inputs are `quarry reco` outputs (plain CSV; columns found by name). A sample\n",
+    "with @MASS is signal generated at that mass [GeV]; without, background.\n",
+    "Metric definitions: docs/eval.md.\n\n",
+    exit_codes_help!(),
+);
+
+#[derive(Debug, Args)]
+pub struct EvalArgs {
+    /// A sample: NAME[@MASS]=FILE (reconstruction output; MASS in GeV marks
+    /// signal). Repeat for several.
+    #[arg(
+        short,
+        long = "sample",
+        value_name = "NAME[@MASS]=FILE",
+        required = true
+    )]
+    pub samples: Vec<quarry::eval::SampleSpec>,
+
+    /// Mass column: `auto` (fit_mass when the fit gave one, else mass_avg)
+    /// or a column name such as mass_a.
+    #[arg(long, default_value = "auto", value_name = "auto|COLUMN")]
+    pub mass_column: quarry::eval::MassColumn,
+
+    /// Summary CSV (`-` = stdout).
+    #[arg(short, long, default_value = "-", value_name = "FILE")]
+    pub output: PathBuf,
+
+    /// Also write the Markdown table of signal samples (`-` = stdout).
+    #[arg(long, value_name = "FILE")]
+    pub table: Option<PathBuf>,
+
+    /// Write SVG plots to this directory: mass_<hyp>.svg, chi2_<hyp>.svg,
+    /// fit_prob_<hyp>.svg (with --fit output), right_fraction.svg.
+    #[arg(long, value_name = "DIR")]
+    pub plots: Option<PathBuf>,
+
+    /// Do not list what was written on stderr.
+    #[arg(short, long)]
+    pub quiet: bool,
 }
 
 const RECO_HELP: &str = concat!(

@@ -49,6 +49,7 @@ fn config(args: &GenerateArgs) -> Result<ToyConfig, Failure> {
 }
 
 pub fn run(args: &GenerateArgs) -> Result<(), Failure> {
+    super::reco::check_output(&args.output)?;
     let mut cfg = config(args)?;
     cfg.event_id_offset = args.first_id;
     if args.first_id.checked_add(args.events).is_none() {

@@ -164,6 +164,22 @@ fn rows_of(
     }
 }
 
+/// Refuses an output that exists but is not a regular file (a device such
+/// as /dev/null, a pipe): outputs are written to a temporary file and
+/// renamed over the target, which would replace the device itself.
+pub fn check_output(path: &std::path::Path) -> Result<(), Failure> {
+    if path.as_os_str() == "-" {
+        return Ok(());
+    }
+    match std::fs::metadata(path) {
+        Ok(m) if !m.is_file() => Err(Failure::Usage(format!(
+            "{}: output exists and is not a regular file; write to stdout with `-o -` and redirect instead",
+            path.display()
+        ))),
+        _ => Ok(()),
+    }
+}
+
 pub fn run(args: &RecoArgs) -> Result<(), Failure> {
     let stdin_uses = args.inputs.iter().filter(|p| p.as_os_str() == "-").count();
     if stdin_uses > 1 {
@@ -174,6 +190,7 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
     if args.chunk_size == 0 {
         return Err(Failure::Usage("--chunk-size must be at least 1".into()));
     }
+    check_output(&args.output)?;
     let pipeline = pipeline(args)?;
     let pool = thread_pool(args.threads)?;
     let policy = match args.on_bad {
@@ -231,7 +248,10 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                 .finish()
                 .map_err(|e| Failure::Output(e.to_string()))?;
             if !args.quiet {
-                eprint!("{}", summary.render(&names, shard));
+                eprint!(
+                    "{}",
+                    summary.render(&names, shard.clone(), pool.current_num_threads())
+                );
             }
             Ok(())
         }
@@ -240,7 +260,10 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             // under its name (stdout already has the rows before the error).
             drop(writer);
             if !args.quiet {
-                eprint!("{}", summary.render(&names, shard));
+                eprint!(
+                    "{}",
+                    summary.render(&names, shard.clone(), pool.current_num_threads())
+                );
             }
             Err(failure)
         }

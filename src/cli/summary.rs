@@ -39,7 +39,7 @@ impl Summary {
     }
 
     /// The text printed at the end of a run.
-    pub fn render(&self, hypotheses: &[String], shard: Option<String>) -> String {
+    pub fn render(&self, hypotheses: &[String], shard: Option<String>, threads: usize) -> String {
         let secs = self.elapsed().as_secs_f64();
         let rate = if secs > 0.0 {
             self.processed as f64 / secs
@@ -78,13 +78,8 @@ impl Summary {
         }
         let _ = writeln!(
             s,
-            "  wall time {secs:.3} s, {rate:.0} events/s ({} thread{})",
-            rayon::current_num_threads(),
-            if rayon::current_num_threads() == 1 {
-                ""
-            } else {
-                "s"
-            }
+            "  wall time {secs:.3} s, {rate:.0} events/s ({threads} thread{})",
+            if threads == 1 { "" } else { "s" }
         );
         s
     }

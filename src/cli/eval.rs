@@ -1,0 +1,123 @@
+//! `quarry eval`: a thin layer over `quarry::eval` — read reconstruction
+//! output of several samples, write the summary CSV, the Markdown table and
+//! the SVG plots.
+
+use std::io::{Read, Write};
+use std::path::{Path, PathBuf};
+
+use quarry::eval::{
+    evaluate, markdown_table, plot_chi2, plot_fit_prob, plot_mass, plot_right_fraction,
+    read_sample, write_summary_csv, EvalError, EvalRecord,
+};
+
+use super::args::EvalArgs;
+use super::Failure;
+
+pub fn run(args: &EvalArgs) -> Result<(), Failure> {
+    let mut records: Vec<EvalRecord> = Vec::new();
+    for spec in &args.samples {
+        if is_gzip(&spec.path) {
+            return Err(Failure::Input(format!(
+                "{}: gzip input; decompress it first (zcat)",
+                spec.path.display()
+            )));
+        }
+        records.extend(
+            read_sample(spec, &args.mass_column).map_err(|e| Failure::Input(e.to_string()))?,
+        );
+    }
+    let summary = evaluate(&records);
+
+    let mut csv = Vec::new();
+    write_summary_csv(&summary, &mut csv).map_err(|e| Failure::Output(e.to_string()))?;
+    write_out(&args.output, &csv)?;
+    if let Some(path) = &args.table {
+        write_out(path, markdown_table(&summary).as_bytes())?;
+    }
+
+    let mut written: Vec<PathBuf> = Vec::new();
+    if let Some(dir) = &args.plots {
+        std::fs::create_dir_all(dir)
+            .map_err(|e| Failure::Output(format!("{}: {e}", dir.display())))?;
+        let mut hypotheses: Vec<&str> = Vec::new();
+        for r in &records {
+            if !hypotheses.contains(&r.hypothesis.as_str()) {
+                hypotheses.push(&r.hypothesis);
+            }
+        }
+        let signal: Vec<EvalRecord> = records
+            .iter()
+            .filter(|r| r.generated_mass.is_some())
+            .cloned()
+            .collect();
+        for h in hypotheses {
+            let stem = file_stem(h);
+            let mass = dir.join(format!("mass_{stem}.svg"));
+            let chi2 = dir.join(format!("chi2_{stem}.svg"));
+            let prob = dir.join(format!("fit_prob_{stem}.svg"));
+            keep(plot_mass(&records, h, &mass), mass, &mut written)?;
+            keep(plot_chi2(&signal, h, &chi2), chi2, &mut written)?;
+            keep(plot_fit_prob(&signal, h, &prob), prob, &mut written)?;
+        }
+        let right = dir.join("right_fraction.svg");
+        keep(plot_right_fraction(&summary, &right), right, &mut written)?;
+    }
+    if !args.quiet {
+        eprintln!(
+            "quarry eval: {} rows, {} sample/hypothesis groups; {} plots written",
+            records.len(),
+            summary.groups.len(),
+            written.len()
+        );
+        for p in &written {
+            eprintln!("  {}", p.display());
+        }
+    }
+    Ok(())
+}
+
+/// A plot with nothing to draw is skipped (e.g. no fit, no signal sample);
+/// any other failure is an output error.
+fn keep(
+    result: Result<(), EvalError>,
+    path: PathBuf,
+    written: &mut Vec<PathBuf>,
+) -> Result<(), Failure> {
+    match result {
+        Ok(()) => {
+            written.push(path);
+            Ok(())
+        }
+        Err(EvalError::NothingToPlot(_)) => Ok(()),
+        Err(e) => Err(Failure::Output(e.to_string())),
+    }
+}
+
+/// A hypothesis name made safe for a file name.
+fn file_stem(name: &str) -> String {
+    name.chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect()
+}
+
+fn is_gzip(path: &Path) -> bool {
+    let mut magic = [0u8; 2];
+    std::fs::File::open(path)
+        .and_then(|mut f| f.read_exact(&mut magic))
+        .is_ok_and(|()| magic == [0x1f, 0x8b])
+}
+
+fn write_out(path: &Path, bytes: &[u8]) -> Result<(), Failure> {
+    let result = if path == Path::new("-") {
+        std::io::stdout().lock().write_all(bytes)
+    } else {
+        std::fs::write(path, bytes)
+    };
+    result.map_err(|e| Failure::Output(format!("{}: {e}", path.display())))
+}
