@@ -308,7 +308,7 @@ pub fn plot_mass(records: &[EvalRecord], hypothesis: &str, path: &Path) -> Resul
         }
     }
     let pad = 0.04 * (hi - lo).max(1.0);
-    let binning = Binning::covering((lo - pad).max(0.0), hi + pad, 70);
+    let binning = Binning::covering((lo - pad).max(0.0), hi + pad, 100);
     let hists: Vec<Vec<f64>> = samples
         .iter()
         .map(|s| binning.fractions(&s.masses, false))
