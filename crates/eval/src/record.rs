@@ -15,14 +15,14 @@ pub const OK_STATUS: &str = "ok";
 pub struct EvalRecord {
     /// Sample name (e.g. `T1000` or `ttbar`).
     pub sample: String,
-    /// Generated heavy-quark mass [GeV] of a signal sample; `None` for a
+    /// Generated heavy-quark mass \[GeV\] of a signal sample; `None` for a
     /// background sample.
     pub generated_mass: Option<f64>,
     /// Hypothesis name.
     pub hypothesis: String,
     /// Status name; [`OK_STATUS`] for a reconstructed event.
     pub status: String,
-    /// Reconstructed mass [GeV] (finite when set).
+    /// Reconstructed mass \[GeV\] (finite when set).
     pub mass: Option<f64>,
     /// χ² of the chosen assignment.
     pub chi2: Option<f64>,
@@ -53,7 +53,7 @@ impl EvalRecord {
 pub struct SampleSpec {
     /// Sample name.
     pub name: String,
-    /// Generated mass [GeV], positive and finite; `None` for background.
+    /// Generated mass \[GeV\], positive and finite; `None` for background.
     pub generated_mass: Option<f64>,
     /// Reconstruction output file.
     pub path: PathBuf,

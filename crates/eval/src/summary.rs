@@ -33,7 +33,7 @@ impl Summary {
 pub struct GroupSummary {
     /// Sample name.
     pub sample: String,
-    /// Generated mass [GeV] (signal samples).
+    /// Generated mass \[GeV\] (signal samples).
     pub generated_mass: Option<f64>,
     /// Hypothesis name.
     pub hypothesis: String,
@@ -77,13 +77,13 @@ pub struct GroupSummary {
 pub struct MassResolution {
     /// Masses used.
     pub n: usize,
-    /// Peak position [GeV].
+    /// Peak position \[GeV\].
     pub peak: f64,
-    /// Statistical uncertainty of the peak, core_sigma/√n_core [GeV].
+    /// Statistical uncertainty of the peak, core_sigma/√n_core \[GeV\].
     pub peak_err: f64,
-    /// Gaussian-core width [GeV].
+    /// Gaussian-core width \[GeV\].
     pub core_sigma: f64,
-    /// Half-width of the narrowest 68.27 % interval [GeV].
+    /// Half-width of the narrowest 68.27 % interval \[GeV\].
     pub half_width_68: f64,
     /// Fraction outside peak ± 3 core σ.
     pub tail_fraction: f64,
