@@ -1,0 +1,175 @@
+//! Outputs are written atomically: a `quarry reco -o FILE` run killed
+//! mid-way leaves nothing under the final name.
+//!
+//! The writer streams rows into a hidden temporary file beside the target,
+//! `.NAME.tmp-PID-N` (docs/csv-format.md), and renames it into place only
+//! after the last row. A process killed by SIGKILL runs no code at all, so
+//! **its temporary file stays behind**; it is hidden (leading dot) and its
+//! name says what it is, so a cleanup job can match it. The same holds for
+//! SIGTERM and SIGINT as long as `quarry` installs no handler for them (the
+//! default action ends the process at once); the tests accept the
+//! temporary file being removed too, so they stay valid if a handler that
+//! cleans up is added.
+#![cfg(unix)]
+
+use std::path::Path;
+use std::process::{Child, Command, Stdio};
+use std::time::{Duration, Instant};
+
+const BIN: &str = env!("CARGO_BIN_EXE_quarry");
+
+/// A large input: `n` lepton+jets events (about 65 bytes per row, 7 rows
+/// per event).
+fn write_input(path: &Path, n: u64) {
+    use std::io::Write;
+    let f = std::fs::File::create(path).unwrap();
+    let mut w = std::io::BufWriter::new(f);
+    writeln!(w, "event,kind,pt,eta,phi,mass,btag,charge,truth,weight").unwrap();
+    for id in 0..n {
+        let s = (id % 97) as f64;
+        writeln!(w, "{id},jet,{},0.41,-2.71,14.2,0.93,,,1", 150.0 + s).unwrap();
+        writeln!(w, "{id},jet,96.3,-0.88,0.35,9.1,0.08,,,1").unwrap();
+        writeln!(w, "{id},jet,74.9,1.62,{},7.7,0.12,,,1", (s / 40.0) - 1.2).unwrap();
+        writeln!(w, "{id},jet,151.0,-0.23,1.92,11.8,0.88,,,1").unwrap();
+        writeln!(w, "{id},jet,45.0,2.1,-0.4,6.0,0.2,,,1").unwrap();
+        writeln!(w, "{id},muon,88.2,0.12,2.44,0.10566,,-1,,1").unwrap();
+        writeln!(w, "{id},met,120.7,,-0.56,,,,,1").unwrap();
+    }
+    w.flush().unwrap();
+}
+
+/// Names in `dir` other than the input.
+fn other_files(dir: &Path) -> Vec<String> {
+    std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n != "in.csv")
+        .collect()
+}
+
+/// Whether `name` is the writer's temporary name for `out.csv` written by
+/// process `pid`: `.out.csv.tmp-<pid>-<counter>`.
+fn is_temp_name(name: &str, pid: u32) -> bool {
+    let Some(rest) = name.strip_prefix(&format!(".out.csv.tmp-{pid}-")) else {
+        return false;
+    };
+    !rest.is_empty() && rest.bytes().all(|b| b.is_ascii_digit())
+}
+
+fn start(dir: &Path) -> Child {
+    Command::new(BIN)
+        .current_dir(dir)
+        .args([
+            "reco",
+            "in.csv",
+            "-o",
+            "out.csv",
+            "--no-progress",
+            "-q",
+            "-j",
+            "1",
+        ])
+        // Small chunks: rows reach the file after the first 64 events.
+        .args(["--chunk-size", "64"])
+        .args([
+            "-H",
+            "ttbar-ljets",
+            "-H",
+            "bwbw-ljets",
+            "-H",
+            "twtw-ljets",
+            "--fit",
+        ])
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .expect("start quarry")
+}
+
+/// Waits until the run has written rows into its temporary file (so it is
+/// mid-run), then sends `signal`, and checks what is left.
+fn kill_mid_run(signal: &str) {
+    let dir = tempfile::tempdir().unwrap();
+    // Far more than the run can finish before the signal: the test
+    // signals as soon as the first rows reach the temporary file.
+    write_input(&dir.path().join("in.csv"), 40_000);
+    let mut child = start(dir.path());
+    let pid = child.id();
+    let deadline = Instant::now() + Duration::from_secs(120);
+    let temp = loop {
+        assert!(
+            child.try_wait().unwrap().is_none(),
+            "quarry finished before it could be killed ({signal}); make the input larger"
+        );
+        let tmp = other_files(dir.path())
+            .into_iter()
+            .find(|n| is_temp_name(n, pid));
+        if let Some(t) = tmp {
+            if std::fs::metadata(dir.path().join(&t)).map_or(0, |m| m.len()) > 0 {
+                break t;
+            }
+        }
+        assert!(Instant::now() < deadline, "no rows written within 120 s");
+        std::thread::sleep(Duration::from_millis(10));
+    };
+    assert!(
+        !dir.path().join("out.csv").exists(),
+        "final name exists mid-run"
+    );
+    if signal == "KILL" {
+        child.kill().unwrap();
+    } else {
+        let ok = Command::new("kill")
+            .args([format!("-{signal}"), pid.to_string()])
+            .status()
+            .unwrap()
+            .success();
+        assert!(ok, "kill -{signal} failed");
+    }
+    let status = child.wait().unwrap();
+    assert!(!status.success(), "{signal}: a killed run reported success");
+    // Nothing under the final name; at most the temporary file, with its
+    // recognisable name.
+    assert!(
+        !dir.path().join("out.csv").exists(),
+        "{signal}: a killed run left output under the final name"
+    );
+    let left = other_files(dir.path());
+    for name in &left {
+        assert!(
+            is_temp_name(name, pid),
+            "{signal}: unexpected file '{name}' left (temp was '{temp}')"
+        );
+    }
+    eprintln!("{signal}: left behind {left:?}");
+}
+
+#[test]
+fn sigkill_mid_run_leaves_nothing_under_the_final_name() {
+    kill_mid_run("KILL");
+}
+
+#[test]
+fn sigterm_mid_run_leaves_nothing_under_the_final_name() {
+    kill_mid_run("TERM");
+}
+
+#[test]
+fn sigint_mid_run_leaves_nothing_under_the_final_name() {
+    kill_mid_run("INT");
+}
+
+/// The counterpart: the same run, not killed, on a small input, ends with
+/// the output under its final name and no temporary file.
+#[test]
+fn a_finished_run_renames_its_output_into_place() {
+    let dir = tempfile::tempdir().unwrap();
+    write_input(&dir.path().join("in.csv"), 50);
+    let status = start(dir.path()).wait().unwrap();
+    assert!(status.success());
+    assert_eq!(other_files(dir.path()), vec!["out.csv".to_string()]);
+    let text = std::fs::read_to_string(dir.path().join("out.csv")).unwrap();
+    // Header + 50 events × 3 hypotheses.
+    assert_eq!(text.lines().count(), 1 + 50 * 3);
+}
