@@ -264,6 +264,9 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                     "{}",
                     summary.render(&names, shard.clone(), pool.current_num_threads())
                 );
+                if args.output.as_os_str() != "-" {
+                    eprintln!("  {} not written", args.output.display());
+                }
             }
             Err(failure)
         }

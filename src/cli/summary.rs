@@ -53,9 +53,10 @@ impl Summary {
         }
         let _ = writeln!(
             s,
-            "; {} rows ({} hypotheses: {})",
+            "; {} rows ({} hypothes{}: {})",
             self.rows,
             hypotheses.len(),
+            if hypotheses.len() == 1 { "is" } else { "es" },
             hypotheses.join(", ")
         );
         let statuses: Vec<String> = self
