@@ -14,9 +14,9 @@ use crate::{fit_status_name, Reconstruction, Status};
 ///
 /// ```
 /// assert_eq!(quarry::output::COLUMNS[0], "ordinal");
-/// assert_eq!(quarry::output::COLUMNS.len(), 35);
+/// assert_eq!(quarry::output::COLUMNS.len(), 36);
 /// ```
-pub const COLUMNS: [&str; 35] = [
+pub const COLUMNS: [&str; 36] = [
     "ordinal",
     "event",
     "hypothesis",
@@ -52,6 +52,7 @@ pub const COLUMNS: [&str; 35] = [
     "fit_mass",
     "fit_mass_err",
     "truth_match",
+    "truth_composites",
 ];
 
 /// One output row. Field order is column order ([`COLUMNS`]).
@@ -132,6 +133,9 @@ pub struct Row {
     /// 1 if the best assignment matches the truth labels, 0 if not; empty
     /// when the event has no truth labels or no assignment.
     pub truth_match: Option<u8>,
+    /// Per-composite truth match of the best assignment,
+    /// `W_had=1;t_had=0;...` in declaration order; empty like `truth_match`.
+    pub truth_composites: String,
 }
 
 impl Row {
@@ -193,6 +197,13 @@ impl Row {
             fit_mass: common.and_then(|c| gev(c.value)),
             fit_mass_err: common.and_then(|c| gev(c.sigma)),
             truth_match: r.truth.map(|t| u8::from(t.all())),
+            truth_composites: r.truth.map_or_else(String::new, |t| {
+                let names = r.hypothesis.composites().iter().map(|c| &c.name);
+                let flags = names
+                    .zip(t.composites())
+                    .map(|(n, &ok)| format!("{n}={}", u8::from(ok)));
+                flags.collect::<Vec<_>>().join(";")
+            }),
         }
     }
 

@@ -35,6 +35,7 @@ fn help_on_every_subcommand_has_a_worked_example_and_exits_0() {
         &["presets", "list", "--help"],
         &["presets", "show", "--help"],
         &["generate", "--help"],
+        &["eval", "--help"],
     ] {
         let out = quarry(args);
         assert_eq!(code(&out), 0, "{args:?}");

@@ -135,6 +135,7 @@ fn hand_built_event_sums_masses_and_assignment() {
     );
     assert!(num(r, "chi2") < 1e-4, "chi2 {}", r["chi2"]);
     assert_eq!(r["truth_match"], "1");
+    assert_eq!(r["truth_composites"], "W_had=1;t_had=1;W_lep=1;t_lep=1");
     // Masses against scikit-hep `vector` (fixture), to the 3 decimals written.
     let masses: BTreeMap<&str, f64> = r["masses"]
         .split(';')
