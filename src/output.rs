@@ -81,15 +81,15 @@ pub struct Row {
     pub n_fatjets: Option<usize>,
     /// Large-radius jets in the W mass window.
     pub n_fatjets_w: Option<usize>,
-    /// Leading jet pT [GeV].
+    /// Leading jet pT \[GeV\].
     pub lead_jet_pt: Option<f64>,
-    /// HT [GeV].
+    /// HT \[GeV\].
     pub ht: Option<f64>,
-    /// ST [GeV].
+    /// ST \[GeV\].
     pub st: Option<f64>,
-    /// ST not claimed by the best top-pair reconstruction [GeV].
+    /// ST not claimed by the best top-pair reconstruction \[GeV\].
     pub st_unclaimed: Option<f64>,
-    /// m(ℓℓ) of the SFOS pair closest to the Z mass [GeV].
+    /// m(ℓℓ) of the SFOS pair closest to the Z mass \[GeV\].
     pub mll_z: Option<f64>,
     /// 1 if two leptons share a known charge, else 0.
     pub same_sign: Option<u8>,
@@ -98,21 +98,21 @@ pub struct Row {
     /// `role=object;...` of the best assignment
     /// (see [`Reconstruction::assignment_text`]).
     pub assignment: String,
-    /// `composite=mass;...` of the best assignment [GeV].
+    /// `composite=mass;...` of the best assignment \[GeV\].
     pub masses: String,
-    /// Mass of the first composite of the pair [GeV]
+    /// Mass of the first composite of the pair \[GeV\]
     /// (see [`Reconstruction::pair`]).
     pub mass_a: Option<f64>,
-    /// Mass of the second composite of the pair [GeV].
+    /// Mass of the second composite of the pair \[GeV\].
     pub mass_b: Option<f64>,
-    /// Their average [GeV].
+    /// Their average \[GeV\].
     pub mass_avg: Option<f64>,
-    /// Neutrino pz of the best assignment [GeV].
+    /// Neutrino pz of the best assignment \[GeV\].
     pub nu_pz: Option<f64>,
     /// Which neutrino solution was used
     /// (see [`Reconstruction::neutrino_solution`]).
     pub nu_solution: &'static str,
-    /// How far the MET was moved to make the solution real [GeV].
+    /// How far the MET was moved to make the solution real \[GeV\].
     pub nu_met_shift: Option<f64>,
     /// Complete assignments whose χ² was evaluated.
     pub n_evaluated: Option<u64>,
@@ -126,9 +126,9 @@ pub struct Row {
     pub fit_ndf: Option<u32>,
     /// Fit χ² probability.
     pub fit_prob: Option<f64>,
-    /// Fitted common mass of the first equal-mass constraint [GeV].
+    /// Fitted common mass of the first equal-mass constraint \[GeV\].
     pub fit_mass: Option<f64>,
-    /// Its uncertainty [GeV].
+    /// Its uncertainty \[GeV\].
     pub fit_mass_err: Option<f64>,
     /// 1 if the best assignment matches the truth labels, 0 if not; empty
     /// when the event has no truth labels or no assignment.

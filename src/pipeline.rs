@@ -151,7 +151,7 @@ pub struct Reconstruction {
     pub reason: String,
     /// Event variables of the selected event (`None` only for bad input).
     pub vars: Option<EventVars>,
-    /// The unclaimed ST [GeV]: ST minus the objects of the best top-pair
+    /// The unclaimed ST \[GeV\]: ST minus the objects of the best top-pair
     /// (`ttbar-ljets`) assignment; `None` when that search found none or the
     /// pipeline was built without it.
     pub st_unclaimed: Option<f64>,
@@ -172,7 +172,7 @@ impl Reconstruction {
         self.search.best()
     }
 
-    /// Mass of the named composite in the best assignment [GeV].
+    /// Mass of the named composite in the best assignment \[GeV\].
     ///
     /// ```
     /// # use quarry::{Pipeline, Status};
@@ -194,7 +194,7 @@ impl Reconstruction {
         pair_of(&self.hypothesis)
     }
 
-    /// Masses of [`pair`](Self::pair) in the best assignment [GeV].
+    /// Masses of [`pair`](Self::pair) in the best assignment \[GeV\].
     pub fn pair_masses(&self) -> Option<[f64; 2]> {
         let [a, b] = self.pair()?;
         let best = self.best()?;

@@ -97,9 +97,9 @@ impl fmt::Display for ObjectRef {
 /// w_window_high`, both finite.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct VarsConfig {
-    /// Lower edge of the large-radius-jet W mass window [GeV] (default 60).
+    /// Lower edge of the large-radius-jet W mass window \[GeV\] (default 60).
     pub w_window_low: f64,
-    /// Upper edge of the window [GeV] (default 100).
+    /// Upper edge of the window \[GeV\] (default 100).
     pub w_window_high: f64,
 }
 
@@ -114,7 +114,7 @@ impl Default for VarsConfig {
     }
 }
 
-/// HT: scalar sum of the selected jets' pT [GeV].
+/// HT: scalar sum of the selected jets' pT \[GeV\].
 ///
 /// ```
 /// use quarry_event::{Event, FourMomentum, Jet};
@@ -126,7 +126,7 @@ pub fn ht(event: &Event) -> f64 {
     event.jets.iter().map(|j| j.p4.pt()).sum()
 }
 
-/// ST: HT + Σ selected lepton pT + MET [GeV].
+/// ST: HT + Σ selected lepton pT + MET \[GeV\].
 ///
 /// ```
 /// use quarry_event::{Event, Met};
@@ -149,7 +149,7 @@ fn object_pt(event: &Event, r: ObjectRef) -> Result<f64, VarsError> {
 }
 
 /// The *unclaimed ST*: ST minus the pT of every distinct object in `used`
-/// (the objects the best top-pair reconstruction assigned) [GeV].
+/// (the objects the best top-pair reconstruction assigned) \[GeV\].
 ///
 /// An object listed twice is subtracted once. With an empty `used` it equals
 /// [`st`]. The result is ≥ 0 up to rounding, since every referenced object
@@ -184,7 +184,7 @@ pub fn st_unclaimed(event: &Event, used: &[ObjectRef]) -> Result<f64, VarsError>
     }
 }
 
-/// m(ℓℓ) [GeV] of the same-flavour, opposite-sign lepton pair closest to
+/// m(ℓℓ) \[GeV\] of the same-flavour, opposite-sign lepton pair closest to
 /// the Z mass; `None` if there is no such pair. Leptons of unknown charge
 /// (0) never form an opposite-sign pair.
 ///
@@ -246,11 +246,11 @@ pub struct EventVars {
     pub n_fat_jets: usize,
     /// Large-radius jets with mass inside the W window.
     pub n_fat_w: usize,
-    /// HT [GeV] (see [`ht`]).
+    /// HT \[GeV\] (see [`ht`]).
     pub ht: f64,
-    /// ST [GeV] (see [`st`]).
+    /// ST \[GeV\] (see [`st`]).
     pub st: f64,
-    /// Leading jet pT [GeV], `None` without jets.
+    /// Leading jet pT \[GeV\], `None` without jets.
     pub leading_jet_pt: Option<f64>,
     /// See [`m_ll_closest_to_z`].
     pub m_ll_z: Option<f64>,
