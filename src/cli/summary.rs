@@ -5,7 +5,7 @@ use std::fmt::Write as _;
 use std::io::IsTerminal;
 use std::time::{Duration, Instant};
 
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressState, ProgressStyle};
 
 /// Counts what happened to every event of a run.
 pub struct Summary {
@@ -94,8 +94,14 @@ pub fn progress_bar(enabled: bool) -> ProgressBar {
     }
     let bar = ProgressBar::with_draw_target(None, ProgressDrawTarget::stderr_with_hz(4));
     bar.set_style(
-        ProgressStyle::with_template("{spinner} {human_pos} events  {per_sec}  {elapsed}")
-            .unwrap_or_else(|_| ProgressStyle::default_spinner()),
+        ProgressStyle::with_template("{spinner} {human_pos} events  {rate}  {elapsed}")
+            .unwrap_or_else(|_| ProgressStyle::default_spinner())
+            .with_key(
+                "rate",
+                |state: &ProgressState, w: &mut dyn std::fmt::Write| {
+                    let _ = write!(w, "{:.0} events/s", state.per_sec());
+                },
+            ),
     );
     bar
 }
