@@ -402,3 +402,32 @@ fn generate_is_deterministic() {
     assert_eq!(ids.first(), Some(&Some(500)));
     assert_eq!(ids.len(), 20);
 }
+
+#[test]
+fn several_inputs_form_one_stream_and_gzip_output_works() {
+    let dir = tempfile::tempdir().unwrap();
+    let (hand, _) = hand_event(dir.path());
+    let bad = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/cli_bad_events.csv");
+    let out = dir.path().join("o.csv.gz");
+    ok(&["reco", s(&bad), s(&hand), "-o", s(&out), "-q"]);
+    let bytes = std::fs::read(&out).unwrap();
+    assert_eq!(&bytes[..2], [0x1f, 0x8b], "gzip magic");
+    let mut text = String::new();
+    use std::io::Read;
+    flate2::read::GzDecoder::new(&bytes[..])
+        .read_to_string(&mut text)
+        .unwrap();
+    let plain = dir.path().join("o.csv");
+    std::fs::write(&plain, text).unwrap();
+    let rows = rows(&plain);
+    // 3 events from the first file, then 1 from the second: ordinals 0..4.
+    let got: Vec<(String, String)> = rows
+        .iter()
+        .map(|r| (r["ordinal"].clone(), r["event"].clone()))
+        .collect();
+    let want: Vec<(String, String)> = [("0", "1"), ("1", "2"), ("2", "3"), ("3", "77")]
+        .iter()
+        .map(|(a, b)| (a.to_string(), b.to_string()))
+        .collect();
+    assert_eq!(got, want);
+}
