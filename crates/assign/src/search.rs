@@ -421,20 +421,124 @@ struct Step {
     skip_if: Option<usize>,
     /// Lepton pair rules with roles placed earlier: (other role, pair index).
     pair_checks: Vec<(usize, usize)>,
-    /// Composites completed by this step, bottom-up.
-    close_comps: Vec<usize>,
-    /// Constraints completed by this step.
-    close_cons: Vec<usize>,
+    /// Composites completed by this step, bottom-up: a range of
+    /// [`Plan::comp_ops`].
+    comps: (usize, usize),
+    /// Constraints completed by this step: a range of [`Plan::con_ops`].
+    cons: (usize, usize),
+}
+
+/// Slots of the search's four-vector array: one per role, then one per
+/// composite.
+const SLOTS: usize = MAX_ROLES + MAX_COMPOSITES;
+
+/// Sums the four-vectors in `src` (slots) into composite `dest`, as a left
+/// fold in this order: first the `n_inv` sources fixed before the step that
+/// completes the composite, then those set at that step (its role, and
+/// composites completed at the same step). The fixed part is summed once per
+/// visit of the step (`Workspace::prefix`), and the replay that reports an
+/// assignment sums in the same order, so reported masses are bit-for-bit the
+/// ones the χ² was computed from.
+#[derive(Clone, Copy, Debug)]
+struct CompOp {
+    dest: usize,
+    n: usize,
+    n_inv: usize,
+    src: [u8; SLOTS],
+}
+
+/// Object slots in `Workspace::obj_p4`: jets, leptons, large jets, then two
+/// neutrino roots per lepton.
+const JET_BASE: usize = 0;
+const LEP_BASE: usize = JET_BASE + MAX_JETS;
+const LARGE_BASE: usize = LEP_BASE + MAX_LEPTONS;
+const NU_BASE: usize = LARGE_BASE + MAX_LARGE_JETS;
+const OBJ_SLOTS: usize = NU_BASE + 2 * MAX_LEPTONS;
+const _: () = assert!(OBJ_SLOTS == 64 && SLOTS == 32 && MAX_COMPOSITES == 16);
+
+/// How a compiled constraint computes σ.
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum ConShape {
+    /// `(m_a − target)/width`.
+    Mass,
+    /// `(m_a − m_b)/width`.
+    EqualAbsolute,
+    /// `(m_a − m_b)/max(width·(|m_a| + |m_b|)/2, MIN_RELATIVE_SIGMA)`.
+    EqualRelative,
+}
+
+/// A constraint with its parameters unpacked for the inner loop. Its term is
+/// bit-for-bit [`crate::Constraint::chi2`].
+#[derive(Clone, Copy, Debug)]
+struct ConOp {
+    /// Constraint index.
+    k: usize,
+    shape: ConShape,
+    a: usize,
+    b: usize,
+    target: f64,
+    /// σ in GeV, or the relative width for `EqualRelative`.
+    width: f64,
+    only_closest: bool,
+}
+
+impl ConOp {
+    fn new(k: usize, c: &crate::Constraint) -> ConOp {
+        use crate::Width;
+        let (shape, a, b, target, width) = match (c.kind, c.width) {
+            (ConstraintKind::Mass { composite, target }, Width::Absolute(w)) => {
+                (ConShape::Mass, composite, composite, target, w)
+            }
+            (ConstraintKind::Mass { composite, target }, Width::Relative(r)) => {
+                (ConShape::Mass, composite, composite, target, r * target)
+            }
+            (ConstraintKind::EqualMass { composites: [a, b] }, Width::Absolute(w)) => {
+                (ConShape::EqualAbsolute, a, b, 0.0, w)
+            }
+            (ConstraintKind::EqualMass { composites: [a, b] }, Width::Relative(r)) => {
+                (ConShape::EqualRelative, a, b, 0.0, r)
+            }
+        };
+        ConOp {
+            k,
+            shape,
+            a,
+            b,
+            target,
+            width,
+            only_closest: c.only_closest,
+        }
+    }
+
+    /// The χ² term given the composite masses.
+    #[inline(always)]
+    fn term(&self, m: &[f64; MAX_COMPOSITES]) -> f64 {
+        let ma = m[self.a];
+        let (diff, sigma) = match self.shape {
+            ConShape::Mass => (ma - self.target, self.width),
+            ConShape::EqualAbsolute => (ma - m[self.b], self.width),
+            ConShape::EqualRelative => {
+                let mb = m[self.b];
+                (
+                    ma - mb,
+                    (self.width * 0.5 * (ma.abs() + mb.abs())).max(crate::MIN_RELATIVE_SIGMA),
+                )
+            }
+        };
+        if diff == 0.0 {
+            return 0.0;
+        }
+        let z = diff / sigma;
+        z * z
+    }
 }
 
 /// The order in which roles are filled and what completes at each step.
 #[derive(Clone, Debug)]
 struct Plan {
     steps: Vec<Step>,
-    /// Per composite: role parts, composite parts, whole role.
-    comp_roles: Vec<Vec<usize>>,
-    comp_comps: Vec<Vec<usize>>,
-    comp_whole: Vec<Option<usize>>,
+    comp_ops: Vec<CompOp>,
+    con_ops: Vec<ConOp>,
     /// Lepton roles the neutrino may come from (at most one).
     nu_lepton: Option<usize>,
 }
@@ -549,6 +653,8 @@ impl Plan {
             })
             .collect();
         let mut steps = Vec::with_capacity(n);
+        let mut comp_ops = Vec::new();
+        let mut con_ops = Vec::new();
         for (d, &r) in order.iter().enumerate() {
             let kind = match roles[r].kind {
                 RoleKind::Jet { tag } => StepKind::Jet(tag),
@@ -590,54 +696,59 @@ impl Plan {
                     (depth_of(other) < d).then_some((other, k))
                 })
                 .collect();
-            let close_comps = h
-                .composites_bottom_up()
-                .iter()
-                .copied()
-                .filter(|&c| comp_close[c] == d)
-                .collect();
-            let close_cons = (0..cons_close.len())
-                .filter(|&k| cons_close[k] == d)
-                .collect();
+            let c0 = comp_ops.len();
+            for &c in h.composites_bottom_up() {
+                if comp_close[c] != d {
+                    continue;
+                }
+                // Sources in declaration order (whole, roles, composites),
+                // then stably split into fixed and set-at-this-step.
+                let mut all: Vec<(bool, usize)> = Vec::new();
+                if let Some(w) = comps[c].whole {
+                    all.push((w == r, w));
+                }
+                for p in &comps[c].parts {
+                    if let Part::Role(q) = p {
+                        all.push((*q == r, *q));
+                    }
+                }
+                for p in &comps[c].parts {
+                    if let Part::Composite(j) = p {
+                        all.push((comp_close[*j] == d, MAX_ROLES + *j));
+                    }
+                }
+                all.sort_by_key(|&(varying, _)| varying);
+                let mut op = CompOp {
+                    dest: c,
+                    n: all.len(),
+                    n_inv: all.iter().filter(|(varying, _)| !varying).count(),
+                    src: [0; SLOTS],
+                };
+                for (i, &(_, slot)) in all.iter().enumerate() {
+                    op.src[i] = slot as u8;
+                }
+                comp_ops.push(op);
+            }
+            let k0 = con_ops.len();
+            for (k, c) in h.constraints().iter().enumerate() {
+                if cons_close[k] == d {
+                    con_ops.push(ConOp::new(k, c));
+                }
+            }
             steps.push(Step {
                 role: r,
                 kind,
                 sym_role,
                 skip_if,
                 pair_checks,
-                close_comps,
-                close_cons,
+                comps: (c0, comp_ops.len()),
+                cons: (k0, con_ops.len()),
             });
         }
-        let comp_roles = comps
-            .iter()
-            .map(|c| {
-                c.parts
-                    .iter()
-                    .filter_map(|p| match p {
-                        Part::Role(r) => Some(*r),
-                        Part::Composite(_) => None,
-                    })
-                    .collect()
-            })
-            .collect();
-        let comp_comps = comps
-            .iter()
-            .map(|c| {
-                c.parts
-                    .iter()
-                    .filter_map(|p| match p {
-                        Part::Composite(j) => Some(*j),
-                        Part::Role(_) => None,
-                    })
-                    .collect()
-            })
-            .collect();
         Plan {
             steps,
-            comp_roles,
-            comp_comps,
-            comp_whole: comps.iter().map(|c| c.whole).collect(),
+            comp_ops,
+            con_ops,
             nu_lepton: roles.iter().find_map(|r| match r.kind {
                 RoleKind::Neutrino { lepton } => Some(lepton),
                 _ => None,
@@ -653,44 +764,59 @@ struct Leaf {
     choice: [u8; MAX_ROLES],
 }
 
+/// Objects used by a partial assignment; passed down the search by value, so
+/// nothing is restored on the way back.
+#[derive(Clone, Copy, Debug, Default)]
+struct Occupancy {
+    /// Used objects by kind: jets, leptons, large jets (and a dummy row for
+    /// neutrino roots, which occupy nothing).
+    used: [u64; 4],
+    /// Jets inside a large jet already used.
+    blocked: u64,
+}
+
 /// Per-event buffers, allocated once per [`Searcher`].
 #[derive(Clone, Debug)]
 struct Workspace {
     // Object pools (leading objects, finite four-vectors).
     n_jets: usize,
-    jet_p4: [FourMomentum; MAX_JETS],
+    /// Four-vectors of every object: jets, leptons, large jets, then two
+    /// neutrino roots per lepton (see [`JET_BASE`] and friends).
+    obj_p4: [FourMomentum; OBJ_SLOTS],
     jet_pos: [u32; MAX_JETS],
     jet_index: [u32; MAX_JETS],
     jet_score: [f64; MAX_JETS],
-    pen_b: [f64; MAX_JETS],
-    pen_l: [f64; MAX_JETS],
+    /// b-tag χ² term per jet: row 0 for `any` roles (zeros), 1 for `b`
+    /// roles, 2 for `light` roles.
+    pen: [[f64; MAX_JETS]; 3],
     n_leps: usize,
-    lep_p4: [FourMomentum; MAX_LEPTONS],
     lep_flav: [Flavour; MAX_LEPTONS],
     lep_charge: [i8; MAX_LEPTONS],
     lep_pos: [u32; MAX_LEPTONS],
     lep_index: [u32; MAX_LEPTONS],
     n_large: usize,
-    large_p4: [FourMomentum; MAX_LARGE_JETS],
     large_pos: [u32; MAX_LARGE_JETS],
     large_index: [u32; MAX_LARGE_JETS],
     large_overlap: [u64; MAX_LARGE_JETS],
     nu: [Option<NeutrinoSolutions>; MAX_LEPTONS],
-    // Candidates per depth: object and b-tag term.
-    n_cand: [usize; MAX_ROLES],
-    cand: [[(f64, u8); MAX_CANDS]; MAX_ROLES],
+    /// Per depth: the objects its role's requirements admit in this event
+    /// (bit = object index), and the b-tag row of `pen`.
+    cand_mask: [u64; MAX_ROLES],
+    pen_row: [usize; MAX_ROLES],
+    /// Per depth: candidates scored for best-first descent.
     buf: [[(f64, u8); MAX_CANDS]; MAX_ROLES],
     rest_min: [f64; MAX_ROLES + 1],
     closest_dev: [f64; MAX_CONSTRAINTS],
     // Current partial assignment.
     choice: [u8; MAX_ROLES],
-    role_p4: [FourMomentum; MAX_ROLES],
-    comp_p4: [FourMomentum; MAX_COMPOSITES],
+    /// Four-vectors: roles, then composites (see [`SLOTS`]).
+    p4s: [FourMomentum; SLOTS],
     comp_m: [f64; MAX_COMPOSITES],
-    used_jets: u64,
-    blocked_jets: u64,
-    used_leps: u32,
-    used_large: u32,
+    /// Per composite: the sum of its sources fixed before the step that
+    /// completes it (see [`CompOp`]).
+    prefix: [FourMomentum; MAX_COMPOSITES],
+    /// χ² of the K-th best so far (∞ until K are held).
+    thr: f64,
     // Results.
     best: Vec<Leaf>,
     k: usize,
@@ -758,37 +884,31 @@ impl Searcher {
         let plan = Plan::new(hyp, leading, &config.btag);
         let ws = Box::new(Workspace {
             n_jets: 0,
-            jet_p4: [FourMomentum::ZERO; MAX_JETS],
+            obj_p4: [FourMomentum::ZERO; OBJ_SLOTS],
             jet_pos: [0; MAX_JETS],
             jet_index: [0; MAX_JETS],
             jet_score: [0.0; MAX_JETS],
-            pen_b: [0.0; MAX_JETS],
-            pen_l: [0.0; MAX_JETS],
+            pen: [[0.0; MAX_JETS]; 3],
             n_leps: 0,
-            lep_p4: [FourMomentum::ZERO; MAX_LEPTONS],
             lep_flav: [Flavour::Electron; MAX_LEPTONS],
             lep_charge: [0; MAX_LEPTONS],
             lep_pos: [0; MAX_LEPTONS],
             lep_index: [0; MAX_LEPTONS],
             n_large: 0,
-            large_p4: [FourMomentum::ZERO; MAX_LARGE_JETS],
             large_pos: [0; MAX_LARGE_JETS],
             large_index: [0; MAX_LARGE_JETS],
             large_overlap: [0; MAX_LARGE_JETS],
             nu: [None; MAX_LEPTONS],
-            n_cand: [0; MAX_ROLES],
-            cand: [[(0.0, 0); MAX_CANDS]; MAX_ROLES],
+            cand_mask: [0; MAX_ROLES],
+            pen_row: [0; MAX_ROLES],
             buf: [[(0.0, 0); MAX_CANDS]; MAX_ROLES],
             rest_min: [0.0; MAX_ROLES + 1],
             closest_dev: [0.0; MAX_CONSTRAINTS],
             choice: [NONE; MAX_ROLES],
-            role_p4: [FourMomentum::ZERO; MAX_ROLES],
-            comp_p4: [FourMomentum::ZERO; MAX_COMPOSITES],
+            p4s: [FourMomentum::ZERO; SLOTS],
             comp_m: [0.0; MAX_COMPOSITES],
-            used_jets: 0,
-            blocked_jets: 0,
-            used_leps: 0,
-            used_large: 0,
+            prefix: [FourMomentum::ZERO; MAX_COMPOSITES],
+            thr: f64::INFINITY,
             best: Vec::with_capacity(config.k_best + 1),
             k: config.k_best,
             prune: config.prune,
@@ -851,11 +971,8 @@ impl Searcher {
         let hyp = &self.hyp;
         let plan = &self.plan;
         ws.best.clear();
+        ws.thr = f64::INFINITY;
         ws.evaluated = Evaluated::default();
-        ws.used_jets = 0;
-        ws.blocked_jets = 0;
-        ws.used_leps = 0;
-        ws.used_large = 0;
         ws.load_objects(
             event,
             self.leading,
@@ -887,14 +1004,19 @@ impl Searcher {
         if let Some(lrole) = plan.nu_lepton {
             ws.nu = [None; MAX_LEPTONS];
             let d = plan.steps.iter().position(|s| s.role == lrole).unwrap_or(0);
-            for i in 0..ws.n_cand[d] {
-                let l = ws.cand[d][i].1 as usize;
-                match self
-                    .config
-                    .neutrino
-                    .solve(&ws.lep_p4[l], event.met.px, event.met.py)
-                {
+            let mut m = ws.cand_mask[d];
+            while m != 0 {
+                let l = m.trailing_zeros() as usize;
+                m &= m - 1;
+                match self.config.neutrino.solve(
+                    &ws.obj_p4[LEP_BASE + l],
+                    event.met.px,
+                    event.met.py,
+                ) {
                     Ok(s) => {
+                        for (r, n) in s.as_slice().iter().enumerate() {
+                            ws.obj_p4[NU_BASE + 2 * l + r] = n.p4;
+                        }
                         ws.nu[l] = Some(s);
                         nu_ok = true;
                     }
@@ -903,7 +1025,8 @@ impl Searcher {
             }
         }
         ws.prepare_closest(hyp);
-        ws.dfs(hyp, plan, 0, 0.0);
+        ws.choice = [NONE; MAX_ROLES];
+        ws.dfs(hyp, plan, 0, 0.0, Occupancy::default());
         if !ws.best.is_empty() {
             SearchStatus::Found
         } else if let (Some(e), false) = (nu_error, nu_ok) {
@@ -944,7 +1067,7 @@ pub fn search_all(
 /// `(E − |p|)(E + |p|)` for precision on nearly massless vectors; composites
 /// here are W, top and heavier systems, for which the direct form loses at
 /// most ~1e-13 relatively. Same sign convention as `FourMomentum::m`.
-#[inline]
+#[inline(always)]
 fn fast_mass(p: &FourMomentum) -> f64 {
     let m2 = p.e() * p.e() - (p.px() * p.px() + p.py() * p.py() + p.pz() * p.pz());
     if m2 >= 0.0 {
@@ -953,9 +1076,6 @@ fn fast_mass(p: &FourMomentum) -> f64 {
         -(-m2).sqrt()
     }
 }
-
-/// Saved occupancy, restored after a branch.
-type Saved = (u64, u64, u32, u32);
 
 impl Workspace {
     fn load_objects(&mut self, event: &Event, leading: usize, overlap_dr: f64, btag: &BtagPolicy) {
@@ -978,13 +1098,13 @@ impl Workspace {
         self.n_jets = keep;
         for (k, &(_, i)) in scratch.iter().enumerate() {
             let j = &event.jets[i as usize];
-            self.jet_p4[k] = j.p4;
+            self.obj_p4[JET_BASE + k] = j.p4;
             self.jet_pos[k] = i;
             self.jet_index[k] = j.index;
             self.jet_score[k] = j.btag;
             let (b, l) = btag.penalties(j.btag);
-            self.pen_b[k] = b;
-            self.pen_l[k] = l;
+            self.pen[1][k] = b;
+            self.pen[2][k] = l;
         }
         // Leptons: finite, by pt, at most MAX_LEPTONS.
         scratch.clear();
@@ -1004,7 +1124,7 @@ impl Workspace {
             } else {
                 (&event.muons[i - ne], i - ne)
             };
-            self.lep_p4[k] = l.p4;
+            self.obj_p4[LEP_BASE + k] = l.p4;
             self.lep_flav[k] = l.flavour;
             self.lep_charge[k] = l.charge;
             self.lep_pos[k] = pos as u32;
@@ -1023,12 +1143,12 @@ impl Workspace {
         let dr2 = overlap_dr * overlap_dr;
         for (k, &(_, i)) in scratch.iter().enumerate() {
             let f = &event.fat_jets[i as usize];
-            self.large_p4[k] = f.p4;
+            self.obj_p4[LARGE_BASE + k] = f.p4;
             self.large_pos[k] = i;
             self.large_index[k] = f.index;
             let mut mask = 0u64;
             for j in 0..self.n_jets {
-                if self.jet_p4[j].delta_r2(&f.p4) < dr2 {
+                if self.obj_p4[JET_BASE + j].delta_r2(&f.p4) < dr2 {
                     mask |= 1 << j;
                 }
             }
@@ -1038,21 +1158,18 @@ impl Workspace {
 
     fn build_candidates(&mut self, plan: &Plan, btag: &BtagPolicy) {
         for (d, step) in plan.steps.iter().enumerate() {
-            let mut n = 0;
-            let mut push = |pen: f64, obj: u8, cand: &mut [(f64, u8); MAX_CANDS]| {
-                cand[n] = (pen, obj);
-                n += 1;
-            };
+            let mut mask = 0u64;
+            let mut row = 0;
             match step.kind {
                 StepKind::Jet(tag) => {
+                    row = match tag {
+                        TagRule::Any => 0,
+                        TagRule::B => 1,
+                        TagRule::Light => 2,
+                    };
                     for j in 0..self.n_jets {
                         if btag.admits(tag, self.jet_score[j]) {
-                            let pen = match tag {
-                                TagRule::B => self.pen_b[j],
-                                TagRule::Light => self.pen_l[j],
-                                TagRule::Any => 0.0,
-                            };
-                            push(pen, j as u8, &mut self.cand[d]);
+                            mask |= 1 << j;
                         }
                     }
                 }
@@ -1061,38 +1178,37 @@ impl Workspace {
                         if flav.is_none_or(|f| f == self.lep_flav[l])
                             && charge.is_none_or(|q| q == self.lep_charge[l])
                         {
-                            push(0.0, l as u8, &mut self.cand[d]);
+                            mask |= 1 << l;
                         }
                     }
                 }
                 StepKind::Neutrino { .. } => {}
-                StepKind::LargeJet { lo, hi, optional } => {
-                    if optional {
-                        push(0.0, NONE, &mut self.cand[d]);
-                    }
+                StepKind::LargeJet { lo, hi, .. } => {
                     for f in 0..self.n_large {
-                        let m = self.large_p4[f].m();
+                        let m = self.obj_p4[LARGE_BASE + f].m();
                         if m >= lo && m <= hi {
-                            push(0.0, f as u8, &mut self.cand[d]);
+                            mask |= 1 << f;
                         }
                     }
                 }
             }
-            self.n_cand[d] = n;
+            self.cand_mask[d] = mask;
+            self.pen_row[d] = row;
         }
         // Admissible lower bound on the b-tag terms still to come.
         let nsteps = plan.steps.len();
         self.rest_min[nsteps] = 0.0;
         for d in (0..nsteps).rev() {
             let step = &plan.steps[d];
-            let min_here = if step.skip_if.is_some() || !matches!(step.kind, StepKind::Jet(_)) {
-                0.0
-            } else {
-                self.cand[d][..self.n_cand[d]]
-                    .iter()
-                    .map(|c| c.0)
-                    .fold(f64::INFINITY, f64::min)
-            };
+            let mut min_here = f64::INFINITY;
+            if step.skip_if.is_none() && matches!(step.kind, StepKind::Jet(_)) {
+                let mut m = self.cand_mask[d];
+                while m != 0 {
+                    let j = m.trailing_zeros() as usize;
+                    m &= m - 1;
+                    min_here = min_here.min(self.pen[self.pen_row[d]][j]);
+                }
+            }
             let min_here = if min_here.is_finite() { min_here } else { 0.0 };
             self.rest_min[d] = self.rest_min[d + 1] + min_here;
         }
@@ -1135,7 +1251,10 @@ impl Workspace {
         best: &mut f64,
     ) {
         if i == roles.len() {
-            let p: FourMomentum = pick[..i].iter().map(|&l| self.lep_p4[l as usize]).sum();
+            let p: FourMomentum = pick[..i]
+                .iter()
+                .map(|&l| self.obj_p4[LEP_BASE + l as usize])
+                .sum();
             let dev = (p.m() - target).abs();
             if dev < *best {
                 *best = dev;
@@ -1171,152 +1290,147 @@ impl Workspace {
             self.closest_rec(hyp, roles, i + 1, pick, used | (1 << l), target, best);
         }
     }
+}
 
-    /// Fills `buf[d]` with the candidates admissible given the roles already
-    /// placed; returns how many.
-    #[inline]
-    fn gather(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize) -> usize {
-        let step = &plan.steps[d];
-        let mut n = 0;
-        match step.kind {
-            StepKind::Neutrino { lepton } => {
-                let l = self.choice[lepton];
-                if let Some(s) = self.nu.get(l as usize).copied().flatten() {
-                    for r in 0..s.len() {
-                        self.buf[d][n] = (0.0, r as u8);
-                        n += 1;
-                    }
-                }
-                return n;
-            }
-            _ => {
-                if let Some(w) = step.skip_if {
-                    if self.choice[w] != NONE {
-                        self.buf[d][0] = (0.0, NONE);
-                        return 1;
-                    }
-                }
+impl Workspace {
+    /// The objects step `d` may place given the roles already filled, as a
+    /// bit mask over object indices, and whether leaving the role empty is a
+    /// candidate (visited before the objects).
+    #[inline(always)]
+    fn admissible_objects(
+        &self,
+        hyp: &Hypothesis,
+        step: &Step,
+        d: usize,
+        occ: &Occupancy,
+    ) -> (u64, bool) {
+        if let StepKind::Neutrino { lepton } = step.kind {
+            let l = self.choice[lepton] as usize;
+            return match self.nu.get(l).copied().flatten() {
+                Some(s) => ((1u64 << s.len()) - 1, false),
+                None => (0, false),
+            };
+        }
+        if let Some(w) = step.skip_if {
+            if self.choice[w] != NONE {
+                return (0, true);
             }
         }
-        let after = step.sym_role.map(|s| self.choice[s]);
-        for i in 0..self.n_cand[d] {
-            let (pen, obj) = self.cand[d][i];
-            if let Some(prev) = after {
-                if obj == NONE || obj <= prev {
-                    continue;
-                }
-            }
-            let ok = match step.kind {
-                StepKind::Jet(_) => (self.used_jets | self.blocked_jets) & (1 << obj) == 0,
-                StepKind::Lepton(..) => {
-                    self.used_leps & (1 << obj) == 0
-                        && step.pair_checks.iter().all(|&(other, k)| {
+        let mut mask = self.cand_mask[d];
+        let mut none = false;
+        match step.kind {
+            StepKind::Jet(_) => mask &= !(occ.used[0] | occ.blocked),
+            StepKind::Lepton(..) => {
+                mask &= !occ.used[1];
+                if !step.pair_checks.is_empty() {
+                    let mut m = mask;
+                    while m != 0 {
+                        let l = m.trailing_zeros() as usize;
+                        m &= m - 1;
+                        let ok = step.pair_checks.iter().all(|&(other, k)| {
                             let o = self.choice[other] as usize;
-                            let l = obj as usize;
                             hyp.lepton_pairs()[k].allows(
                                 (self.lep_flav[l], self.lep_charge[l]),
                                 (self.lep_flav[o], self.lep_charge[o]),
                             )
-                        })
-                }
-                StepKind::LargeJet { .. } => {
-                    obj == NONE
-                        || (self.used_large & (1 << obj) == 0
-                            && self.large_overlap[obj as usize] & self.used_jets == 0)
-                }
-                StepKind::Neutrino { .. } => false,
-            };
-            if ok {
-                self.buf[d][n] = (pen, obj);
-                n += 1;
-            }
-        }
-        n
-    }
-
-    #[inline]
-    fn place(&mut self, plan: &Plan, d: usize, obj: u8) -> Saved {
-        let saved = (
-            self.used_jets,
-            self.blocked_jets,
-            self.used_leps,
-            self.used_large,
-        );
-        let step = &plan.steps[d];
-        let role = step.role;
-        self.choice[role] = obj;
-        if obj == NONE {
-            self.role_p4[role] = FourMomentum::ZERO;
-            return saved;
-        }
-        let o = obj as usize;
-        self.role_p4[role] = match step.kind {
-            StepKind::Jet(_) => {
-                self.used_jets |= 1 << o;
-                self.jet_p4[o]
-            }
-            StepKind::Lepton(..) => {
-                self.used_leps |= 1 << o;
-                self.lep_p4[o]
-            }
-            StepKind::Neutrino { lepton } => self
-                .nu
-                .get(self.choice[lepton] as usize)
-                .copied()
-                .flatten()
-                .and_then(|s| s.as_slice().get(o).map(|n| n.p4))
-                .unwrap_or(FourMomentum::ZERO),
-            StepKind::LargeJet { .. } => {
-                self.used_large |= 1 << o;
-                self.blocked_jets |= self.large_overlap[o];
-                self.large_p4[o]
-            }
-        };
-        saved
-    }
-
-    #[inline]
-    fn restore(&mut self, saved: Saved) {
-        (
-            self.used_jets,
-            self.blocked_jets,
-            self.used_leps,
-            self.used_large,
-        ) = saved;
-    }
-
-    /// Completes the composites and constraints of step `d`, returning the
-    /// running χ² (`∞` if a constraint rejects the assignment).
-    #[inline]
-    fn close(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, mut v: f64) -> f64 {
-        let step = &plan.steps[d];
-        for &c in &step.close_comps {
-            let mut p = match plan.comp_whole[c] {
-                Some(w) => self.role_p4[w],
-                None => FourMomentum::ZERO,
-            };
-            for &r in &plan.comp_roles[c] {
-                p += self.role_p4[r];
-            }
-            for &j in &plan.comp_comps[c] {
-                p += self.comp_p4[j];
-            }
-            self.comp_p4[c] = p;
-            self.comp_m[c] = fast_mass(&p);
-        }
-        let cons = hyp.constraints();
-        for &k in &step.close_cons {
-            let c = &cons[k];
-            if c.only_closest {
-                if let ConstraintKind::Mass { composite, target } = c.kind {
-                    let dev = (self.comp_m[composite] - target).abs();
-                    let lim = self.closest_dev[k];
-                    if dev.is_nan() || dev > lim + 1e-9 * lim.max(1.0) {
-                        return f64::INFINITY;
+                        });
+                        if !ok {
+                            mask &= !(1 << l);
+                        }
                     }
                 }
             }
-            v += c.chi2(&self.comp_m);
+            StepKind::LargeJet { optional, .. } => {
+                none = optional;
+                mask &= !occ.used[2];
+                let mut m = mask;
+                while m != 0 {
+                    let f = m.trailing_zeros() as usize;
+                    m &= m - 1;
+                    if self.large_overlap[f] & occ.used[0] != 0 {
+                        mask &= !(1 << f);
+                    }
+                }
+            }
+            StepKind::Neutrino { .. } => {}
+        }
+        if let Some(s) = step.sym_role {
+            // Canonical order within an interchangeable group: strictly
+            // after the earlier member's object (never empty).
+            let prev = self.choice[s];
+            if prev == NONE {
+                return (0, false);
+            }
+            mask &= u64::MAX.checked_shl(u32::from(prev) + 1).unwrap_or(0);
+            none = false;
+        }
+        (mask, none)
+    }
+
+    /// Where the step's objects live in `obj_p4` (object `o` at `base + o`)
+    /// and which row of [`Occupancy::used`] they occupy.
+    #[inline(always)]
+    fn pool(&self, step: &Step) -> (usize, usize) {
+        match step.kind {
+            StepKind::Jet(_) => (JET_BASE, 0),
+            StepKind::Lepton(..) => (LEP_BASE, 1),
+            StepKind::LargeJet { .. } => (LARGE_BASE, 2),
+            StepKind::Neutrino { lepton } => (
+                NU_BASE + 2 * (self.choice[lepton] as usize % MAX_LEPTONS),
+                3,
+            ),
+        }
+    }
+
+    /// Sums, once per visit of a step, the sources of its composites that are
+    /// fixed before it.
+    #[inline(always)]
+    fn prepare_prefixes(&mut self, ops: &[CompOp]) {
+        for op in ops {
+            if op.n_inv > 0 {
+                let inv = &op.src[..op.n_inv];
+                let mut p = self.p4s[inv[0] as usize % SLOTS];
+                for &s in &inv[1..] {
+                    p += self.p4s[s as usize % SLOTS];
+                }
+                self.prefix[op.dest % MAX_COMPOSITES] = p;
+            }
+        }
+    }
+
+    /// Puts four-vector `p` in `role` and completes the step's composites
+    /// (prefixes prepared).
+    #[inline(always)]
+    fn close_comps(&mut self, ops: &[CompOp], role: usize, p: FourMomentum) {
+        self.p4s[role % SLOTS] = p;
+        for op in ops {
+            let dest = op.dest % MAX_COMPOSITES;
+            let (mut p, from) = if op.n_inv > 0 {
+                (self.prefix[dest], op.n_inv)
+            } else {
+                (self.p4s[op.src[0] as usize % SLOTS], 1)
+            };
+            for &s in &op.src[from.min(op.n)..op.n] {
+                p += self.p4s[s as usize % SLOTS];
+            }
+            self.p4s[MAX_ROLES + dest] = p;
+            self.comp_m[dest] = fast_mass(&p);
+        }
+    }
+
+    /// Adds the terms of the constraints the step completes to `v`; `∞` if
+    /// one rejects the assignment or the sum is NaN.
+    #[inline(always)]
+    fn eval_cons(&self, cons: &[ConOp], mut v: f64) -> f64 {
+        for op in cons {
+            if op.only_closest && op.shape == ConShape::Mass {
+                let dev = (self.comp_m[op.a % MAX_COMPOSITES] - op.target).abs();
+                let lim = self.closest_dev[op.k % MAX_CONSTRAINTS];
+                if dev.is_nan() || dev > lim + 1e-9 * lim.max(1.0) {
+                    return f64::INFINITY;
+                }
+            }
+            v += op.term(&self.comp_m);
         }
         if v.is_nan() {
             f64::INFINITY
@@ -1325,21 +1439,12 @@ impl Workspace {
         }
     }
 
-    #[inline]
-    fn threshold(&self) -> f64 {
-        if self.best.len() < self.k {
-            f64::INFINITY
-        } else {
-            self.best[self.k - 1].chi2
-        }
-    }
-
     /// Whether a partial assignment with running χ² `v` and at least `rest`
     /// more to come may still reach the K best. Strict: ties survive, so the
     /// tie-break matches exhaustive enumeration. The running sum only grows
     /// (adding a non-negative term never rounds down), so `v` alone is an
     /// exact bound; `rest` is shaved by 1e-12 relative to absorb rounding.
-    #[inline]
+    #[inline(always)]
     fn admissible(&self, v: f64, rest: f64) -> bool {
         if !v.is_finite() {
             return false;
@@ -1352,10 +1457,20 @@ impl Workspace {
         } else {
             v
         };
-        bound <= self.threshold()
+        bound <= self.thr
     }
 
+    /// Offers the current complete assignment with χ² `v` to the K best.
+    #[inline(always)]
     fn record(&mut self, v: f64, n_roles: usize) {
+        // Strictly worse than the K-th best (or not finite): cannot enter.
+        if v <= self.thr {
+            self.insert(v, n_roles);
+        }
+    }
+
+    #[inline(never)]
+    fn insert(&mut self, v: f64, n_roles: usize) {
         if !v.is_finite() {
             return;
         }
@@ -1379,23 +1494,73 @@ impl Workspace {
                 choice: self.choice,
             },
         );
+        if self.best.len() == self.k {
+            self.thr = self.best[self.k - 1].chi2;
+        }
     }
 
-    fn dfs(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, partial: f64) {
-        let nsteps = plan.steps.len();
-        let last = d + 1 == nsteps;
-        let n = self.gather(hyp, plan, d);
+    fn dfs(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, partial: f64, occ: Occupancy) {
+        let step = &plan.steps[d];
+        let (mask, none) = self.admissible_objects(hyp, step, d, &occ);
+        if mask == 0 && !none {
+            return;
+        }
+        let ops = &plan.comp_ops[step.comps.0..step.comps.1];
+        let cons = &plan.con_ops[step.cons.0..step.cons.1];
+        self.prepare_prefixes(ops);
+        let role = step.role % MAX_ROLES;
+        let (base, kind) = self.pool(step);
+        let pen = &self.pen[self.pen_row[d] % 3];
+        let pen: [f64; MAX_JETS] = *pen;
+        if d + 1 == plan.steps.len() {
+            let n_roles = hyp.roles().len();
+            let mut n = 0u64;
+            if none {
+                self.choice[role] = NONE;
+                self.close_comps(ops, role, FourMomentum::ZERO);
+                let v = self.eval_cons(cons, partial);
+                self.record(v, n_roles);
+                n += 1;
+            }
+            let mut m = mask;
+            while m != 0 {
+                let o = m.trailing_zeros() as usize;
+                m &= m - 1;
+                self.choice[role] = o as u8;
+                self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+                let v = self.eval_cons(cons, partial + pen[o % MAX_JETS]);
+                self.record(v, n_roles);
+                n += 1;
+            }
+            self.evaluated.complete += n;
+            return;
+        }
         let rest = self.rest_min[d + 1];
-        if self.prune && !last && !plan.steps[d].close_cons.is_empty() {
+        let placed = |ws: &Self, o: usize| -> Occupancy {
+            let mut occ = occ;
+            occ.used[kind] |= 1 << o;
+            if kind == 2 {
+                occ.blocked |= ws.large_overlap[o % MAX_LARGE_JETS];
+            }
+            occ
+        };
+        if self.prune && !cons.is_empty() {
             // A constraint closes here: score every candidate, then descend
             // best-first so good incumbents appear early and the rest can be
             // cut off at once.
-            for i in 0..n {
-                let (pen, obj) = self.buf[d][i];
-                let saved = self.place(plan, d, obj);
-                let v = self.close(hyp, plan, d, partial + pen);
-                self.restore(saved);
-                self.buf[d][i].0 = v;
+            let mut n = 0;
+            if none {
+                self.close_comps(ops, role, FourMomentum::ZERO);
+                self.buf[d][n] = (self.eval_cons(cons, partial), NONE);
+                n += 1;
+            }
+            let mut m = mask;
+            while m != 0 {
+                let o = m.trailing_zeros() as usize;
+                m &= m - 1;
+                self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+                self.buf[d][n] = (self.eval_cons(cons, partial + pen[o % MAX_JETS]), o as u8);
+                n += 1;
             }
             self.evaluated.partial += n as u64;
             let list = &mut self.buf[d][..n];
@@ -1414,48 +1579,66 @@ impl Workspace {
                 if !self.admissible(v, rest) {
                     break;
                 }
-                let saved = self.place(plan, d, obj);
-                self.close(hyp, plan, d, 0.0);
-                self.dfs(hyp, plan, d + 1, v);
-                self.restore(saved);
+                self.choice[role] = obj;
+                if obj == NONE {
+                    self.close_comps(ops, role, FourMomentum::ZERO);
+                    self.dfs(hyp, plan, d + 1, v, occ);
+                } else {
+                    let o = obj as usize;
+                    self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+                    let occ = placed(self, o);
+                    self.dfs(hyp, plan, d + 1, v, occ);
+                }
             }
         } else {
-            for i in 0..n {
-                let (pen, obj) = self.buf[d][i];
-                let saved = self.place(plan, d, obj);
-                let v = self.close(hyp, plan, d, partial + pen);
-                if last {
-                    self.evaluated.complete += 1;
-                    self.record(v, hyp.roles().len());
-                } else {
-                    self.evaluated.partial += 1;
-                    if self.admissible(v, rest) {
-                        self.dfs(hyp, plan, d + 1, v);
-                    }
+            let mut n = 0u64;
+            if none {
+                self.choice[role] = NONE;
+                self.close_comps(ops, role, FourMomentum::ZERO);
+                let v = self.eval_cons(cons, partial);
+                n += 1;
+                if self.admissible(v, rest) {
+                    self.dfs(hyp, plan, d + 1, v, occ);
                 }
-                self.restore(saved);
             }
+            let mut m = mask;
+            while m != 0 {
+                let o = m.trailing_zeros() as usize;
+                m &= m - 1;
+                self.choice[role] = o as u8;
+                self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+                let v = self.eval_cons(cons, partial + pen[o % MAX_JETS]);
+                n += 1;
+                if self.admissible(v, rest) {
+                    let occ = placed(self, o);
+                    self.dfs(hyp, plan, d + 1, v, occ);
+                }
+            }
+            self.evaluated.partial += n;
         }
     }
 
     /// Replays a stored assignment to report its objects, masses and terms.
     fn build(&mut self, hyp: &Hypothesis, plan: &Plan, leaf: &Leaf) -> RankedAssignment {
-        self.used_jets = 0;
-        self.blocked_jets = 0;
-        self.used_leps = 0;
-        self.used_large = 0;
         let mut btag_chi2 = 0.0;
-        for (d, step) in plan.steps.iter().enumerate() {
+        for step in &plan.steps {
             let obj = leaf.choice[step.role];
-            if let (StepKind::Jet(tag), false) = (step.kind, obj == NONE) {
-                btag_chi2 += match tag {
-                    TagRule::B => self.pen_b[obj as usize],
-                    TagRule::Light => self.pen_l[obj as usize],
-                    TagRule::Any => 0.0,
-                };
-            }
-            self.place(plan, d, obj);
-            self.close(hyp, plan, d, 0.0);
+            self.choice[step.role] = obj;
+            let p = if obj == NONE {
+                FourMomentum::ZERO
+            } else {
+                if let StepKind::Jet(tag) = step.kind {
+                    btag_chi2 += match tag {
+                        TagRule::B => self.pen[1][obj as usize],
+                        TagRule::Light => self.pen[2][obj as usize],
+                        TagRule::Any => 0.0,
+                    };
+                }
+                self.obj_p4[self.pool(step).0 + obj as usize]
+            };
+            let ops = &plan.comp_ops[step.comps.0..step.comps.1];
+            self.prepare_prefixes(ops);
+            self.close_comps(ops, step.role, p);
         }
         let roles = hyp.roles();
         let mut objects = [ObjectRef::Empty; MAX_ROLES];
@@ -1501,7 +1684,7 @@ impl Workspace {
         }
         let mut composite_p4 = [FourMomentum::ZERO; MAX_COMPOSITES];
         composite_p4[..hyp.composites().len()]
-            .copy_from_slice(&self.comp_p4[..hyp.composites().len()]);
+            .copy_from_slice(&self.p4s[MAX_ROLES..MAX_ROLES + hyp.composites().len()]);
         RankedAssignment {
             chi2: leaf.chi2,
             btag_chi2,
