@@ -62,6 +62,7 @@ impl AtomicOutput {
             });
         }
         let name = path.display().to_string();
+        refuse_non_regular(path, &name)?;
         let file_name = path.file_name().ok_or_else(|| CsvError::Write {
             file: name.clone(),
             source: io::Error::new(io::ErrorKind::InvalidInput, "not a file name"),
@@ -115,10 +116,31 @@ impl AtomicOutput {
             Sink::GzFile(gz) => finish_file(gz.finish().map_err(werr)?).map_err(werr)?,
         }
         if let Some((path, mut guard)) = target {
+            // Checked again here: the target may have appeared since create.
+            refuse_non_regular(&path, &name)?;
             fs::rename(&guard.tmp, &path).map_err(werr)?;
             guard.committed = true;
         }
         Ok(())
+    }
+}
+
+/// Refuses a target that exists but is not a regular file (a device node
+/// such as `/dev/null`, a FIFO, a socket, a directory): the rename in
+/// [`AtomicOutput::commit`] would replace the node itself (as root even
+/// `/dev/null`). Symbolic links are followed, so a link to a device is
+/// refused too. A missing target is fine.
+fn refuse_non_regular(path: &Path, name: &str) -> Result<(), CsvError> {
+    match fs::metadata(path) {
+        Ok(m) if !m.is_file() => Err(CsvError::Write {
+            file: name.to_string(),
+            source: io::Error::new(
+                io::ErrorKind::InvalidInput,
+                "output exists and is not a regular file (a device, pipe or directory); \
+                 write to stdout with '-' and redirect instead",
+            ),
+        }),
+        _ => Ok(()),
     }
 }
 

@@ -116,3 +116,82 @@ fn unwritable_output_is_a_clear_error() {
         "{err}"
     );
 }
+
+/// Makes a FIFO with the system's `mkfifo`; `false` if that is unavailable.
+#[cfg(unix)]
+fn make_fifo(path: &std::path::Path) -> bool {
+    std::process::Command::new("mkfifo")
+        .arg(path)
+        .status()
+        .is_ok_and(|s| s.success())
+}
+
+#[cfg(unix)]
+fn is_fifo(path: &std::path::Path) -> bool {
+    use std::os::unix::fs::FileTypeExt;
+    std::fs::symlink_metadata(path)
+        .unwrap()
+        .file_type()
+        .is_fifo()
+}
+
+/// A temp-file-and-rename writer must never replace a device node, a FIFO
+/// or a directory that already sits under the target name.
+#[cfg(unix)]
+#[test]
+fn writers_refuse_targets_that_are_not_regular_files() {
+    let dir = tempfile::tempdir().unwrap();
+    let fifo = dir.path().join("pipe.csv");
+    assert!(make_fifo(&fifo), "mkfifo failed");
+    let expect = "exists and is not a regular file";
+    let err = RowWriter::<Row>::create(&fifo).err().expect("FIFO refused");
+    assert!(err.to_string().contains(expect), "{err}");
+    assert!(
+        err.to_string().starts_with(&fifo.display().to_string()),
+        "{err}"
+    );
+    let err = EventWriter::create(&fifo).err().expect("FIFO refused");
+    assert!(err.to_string().contains(expect), "{err}");
+    assert!(is_fifo(&fifo), "the FIFO must be left in place");
+
+    let sub = dir.path().join("subdir.csv");
+    std::fs::create_dir(&sub).unwrap();
+    let err = EventWriter::create(&sub).err().expect("directory refused");
+    assert!(err.to_string().contains(expect), "{err}");
+    assert!(sub.is_dir());
+
+    // A symbolic link to a FIFO is followed and refused as well.
+    let link = dir.path().join("link.csv");
+    std::os::unix::fs::symlink(&fifo, &link).unwrap();
+    let err = RowWriter::<Row>::create(&link).err().expect("link refused");
+    assert!(err.to_string().contains(expect), "{err}");
+
+    // Nothing but the three entries made here: no temp file left behind.
+    assert_eq!(
+        dir_entries(dir.path()),
+        vec![
+            "link.csv".to_string(),
+            "pipe.csv".into(),
+            "subdir.csv".into()
+        ]
+    );
+}
+
+/// The check is repeated at `finish`: a FIFO that appears under the target
+/// name after `create` is not replaced either.
+#[cfg(unix)]
+#[test]
+fn finish_refuses_a_target_that_became_a_fifo() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("late.csv");
+    let mut w = EventWriter::create(&path).unwrap();
+    w.write(&Event::new(1)).unwrap();
+    assert!(make_fifo(&path), "mkfifo failed");
+    let err = w.finish().expect_err("refused at finish");
+    assert!(
+        err.to_string().contains("exists and is not a regular file"),
+        "{err}"
+    );
+    assert!(is_fifo(&path));
+    assert_eq!(dir_entries(dir.path()), vec!["late.csv".to_string()]);
+}
