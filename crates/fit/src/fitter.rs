@@ -1,6 +1,7 @@
-//! The fitter: runs argmin's trust-region Newton method on a
-//! [`KinematicChi2`], adds the augmented-Lagrangian loop for hard
-//! constraints, and packs a Copy [`FitResult`].
+//! The fitter: runs the Newton(–Lagrange) solver of `newton.rs` on a
+//! [`KinematicChi2`] through argmin's `Executor`, falls back to argmin's
+//! trust region (inside an augmented-Lagrangian loop for hard constraints)
+//! when it fails, and packs a Copy [`FitResult`].
 
 use std::cmp::Ordering;
 
@@ -10,6 +11,7 @@ use argmin::core::{
 use argmin::solver::trustregion::TrustRegion;
 
 use crate::dogleg::DoglegStep;
+use crate::newton::{NewtonLagrange, Progress};
 use argmin_math::{ArgminDot, ArgminInv};
 use nalgebra::{DMatrix, DVector};
 use quarry_lorentz::FourMomentum;
@@ -27,8 +29,8 @@ pub enum ConstraintMode {
     /// Gaussian χ² terms ((m − M)/width)², linearised as
     /// ((m² − M²)/(2M·width))²; the constraint is met only on average.
     Soft,
-    /// Constraints met exactly (to [`FitConfig::hard_tolerance`]) by an
-    /// augmented Lagrangian around the trust-region minimiser.
+    /// Constraints met exactly (to [`FitConfig::hard_tolerance`]) by
+    /// Newton–Lagrange iterations (see the crate docs).
     #[default]
     Hard,
 }
@@ -38,16 +40,18 @@ pub enum ConstraintMode {
 pub struct FitConfig {
     /// Soft or hard constraints.
     pub mode: ConstraintMode,
-    /// Trust-region iterations allowed per fit (summed over the
-    /// augmented-Lagrangian passes in hard mode).
+    /// Iterations allowed per fit (Newton(–Lagrange) iterations plus, if
+    /// the fallback runs, its trust-region iterations over all passes).
     pub max_iterations: u32,
-    /// Convergence: the Newton decrement gᵀH⁻¹g (twice the χ² decrease the
-    /// next Newton step predicts; scale-free) must fall below this. 1e-10
-    /// puts the parameters within ~1e-5 σ of the minimum.
+    /// Convergence: the Newton decrement must fall below this — soft mode
+    /// gᵀH⁻¹g (twice the χ² decrease the next Newton step predicts;
+    /// scale-free), hard mode the squared length of the next
+    /// Newton–Lagrange step in σ units. 1e-10 puts the parameters within
+    /// ~1e-5 σ of the minimum.
     pub decrement_tolerance: f64,
     /// Hard mode: every |m − M| must end below this (GeV).
     pub hard_tolerance: f64,
-    /// Hard mode: most augmented-Lagrangian passes.
+    /// Hard mode: most augmented-Lagrangian passes of the fallback method.
     pub max_passes: u32,
     /// Compute uncertainties (σ of fitted parameters, common-mass σ).
     pub uncertainties: bool,
@@ -107,7 +111,7 @@ pub struct CommonMass {
 pub struct FitResult {
     /// Why the fit stopped.
     pub status: FitStatus,
-    /// Trust-region iterations used (summed over passes).
+    /// Iterations used (Newton(–Lagrange) plus any fallback iterations).
     pub iterations: u32,
     /// Fit χ²: the measurement χ² (objects + MET) plus, in soft mode, the
     /// constraint terms.
@@ -307,6 +311,9 @@ impl<S: Solver<KinematicChi2, FitState>> Solver<KinematicChi2, FitState> for Gra
     }
 }
 
+/// Most Newton(–Lagrange) iterations before falling back to the
+/// trust-region method (converged fits take far fewer).
+const NEWTON_MAX_ITERATIONS: u32 = 40;
 /// Initial trust-region radius in σ units.
 const INITIAL_RADIUS: f64 = 3.0;
 /// Largest trust-region radius in σ units: small enough that argmin's
@@ -331,9 +338,8 @@ enum Outcome {
 /// [`fit`](Self::fit) per assignment.
 ///
 /// Per-fit inputs and results are fixed-capacity values; a fit allocates the
-/// boxed problem, one shared Hessian block per trust-region iteration,
-/// argmin's bookkeeping and, when uncertainties are on, the small
-/// covariance solve.
+/// boxed problem and, when uncertainties are on, the small covariance solve
+/// (the fallback method also one Hessian block per iteration).
 ///
 /// ```
 /// use quarry_fit::{Composite, Constraint, FitInput, KinematicFitter, Measured};
@@ -373,23 +379,87 @@ impl KinematicFitter {
             Ok(p) => p,
             Err(e) => return FitResult::failed(input, FitStatus::InvalidInput(e), 0),
         };
+        let hard = self.config.mode == ConstraintMode::Hard;
+        if hard {
+            // The terms become equality constraints: no cost weight.
+            for t in 0..problem.n_terms() {
+                problem.set_term_weights(t, 0.0, 0.0);
+            }
+        }
+        let budget = self.config.max_iterations.min(NEWTON_MAX_ITERATIONS);
+        let (p, x, iterations, progress) = self.newton(problem, hard, budget);
+        problem = p;
+        let (x, status, iterations) = if progress == Progress::Converged {
+            (x, FitStatus::Converged, iterations)
+        } else {
+            // Rare: fall back to the trust-region method from the start.
+            problem.set_soft_weights();
+            match self.fit_trust_region(&mut problem, iterations) {
+                Ok(r) => r,
+                Err(iterations) => {
+                    return FitResult::failed(input, FitStatus::NumericalFailure, iterations)
+                }
+            }
+        };
+        let result = self.pack(input, &problem, &x, status, iterations);
+        if result.all_finite() {
+            result
+        } else {
+            FitResult::failed(input, FitStatus::NumericalFailure, iterations)
+        }
+    }
+
+    /// One argmin run of the Newton(–Lagrange) solver from x = 0.
+    fn newton(
+        &self,
+        problem: KinematicChi2,
+        hard: bool,
+        max_iterations: u32,
+    ) -> (KinematicChi2, Params, u32, Progress) {
+        let solver = NewtonLagrange::new(
+            Params::zeros(),
+            hard,
+            self.config.decrement_tolerance,
+            self.config.hard_tolerance,
+        );
+        let backup = problem.clone();
+        let run = Executor::new(problem, solver)
+            .configure(|s| s.max_iters(u64::from(max_iterations)))
+            .timer(false)
+            .run();
+        match run {
+            Err(_) => (backup, Params::zeros(), 0, Progress::Failed),
+            Ok(mut res) => {
+                let iterations = res.state.get_iter() as u32;
+                let problem = res.problem.take_problem().unwrap_or(backup);
+                (problem, *res.solver.x(), iterations, res.solver.progress())
+            }
+        }
+    }
+
+    /// The trust-region fit (soft) or augmented-Lagrangian loop around it
+    /// (hard) from x = 0, after `iterations` already spent; `Err` with
+    /// the iteration count on a numerical failure.
+    fn fit_trust_region(
+        &self,
+        problem: &mut KinematicChi2,
+        iterations: u32,
+    ) -> Result<(Params, FitStatus, u32), u32> {
+        let mut iterations = iterations;
         let mut x = Params::zeros();
-        let mut iterations = 0u32;
         let mut status;
         match self.config.mode {
             ConstraintMode::Soft => {
                 let tolerance = self.config.decrement_tolerance;
-                let (p, xn, it, outcome) =
-                    self.minimise(problem, x, tolerance, self.config.max_iterations);
-                problem = p;
+                let budget = self.config.max_iterations.saturating_sub(iterations);
+                let (p, xn, it, outcome) = self.minimise(problem.clone(), x, tolerance, budget);
+                *problem = p;
                 x = xn;
                 iterations += it;
                 status = match outcome {
                     Outcome::Converged => FitStatus::Converged,
                     Outcome::IterationLimit => FitStatus::IterationLimit,
-                    Outcome::Failed => {
-                        return FitResult::failed(input, FitStatus::NumericalFailure, iterations)
-                    }
+                    Outcome::Failed => return Err(iterations),
                 };
             }
             ConstraintMode::Hard => {
@@ -423,19 +493,13 @@ impl KinematicFitter {
                         status = FitStatus::IterationLimit;
                         break;
                     }
-                    let (p, xn, it, outcome) = self.minimise(problem, x, tolerance, budget);
-                    problem = p;
+                    let (p, xn, it, outcome) = self.minimise(problem.clone(), x, tolerance, budget);
+                    *problem = p;
                     x = xn;
                     iterations += it;
                     let th = problem.to_physical(&x);
                     match outcome {
-                        Outcome::Failed => {
-                            return FitResult::failed(
-                                input,
-                                FitStatus::NumericalFailure,
-                                iterations,
-                            )
-                        }
+                        Outcome::Failed => return Err(iterations),
                         Outcome::IterationLimit => status = FitStatus::IterationLimit,
                         Outcome::Converged => {
                             if problem.max_violation(&th) < self.config.hard_tolerance {
@@ -457,12 +521,7 @@ impl KinematicFitter {
                 }
             }
         }
-        let result = self.pack(input, &problem, &x, status, iterations);
-        if result.all_finite() {
-            result
-        } else {
-            FitResult::failed(input, FitStatus::NumericalFailure, iterations)
-        }
+        Ok((x, status, iterations))
     }
 
     /// One argmin run: trust region (dogleg subproblem) from `x0`.

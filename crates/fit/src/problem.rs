@@ -95,7 +95,7 @@ impl HessianMatrix {
 /// Cholesky of the row-major n×n `h` + shift·I into row-major `l` (lower
 /// triangle; the diagonal stores 1/L_jj); false if not positive definite
 /// (or not finite).
-fn cholesky(h: &[f64], n: usize, shift: f64, l: &mut [f64]) -> bool {
+pub(crate) fn cholesky(h: &[f64], n: usize, shift: f64, l: &mut [f64]) -> bool {
     for j in 0..n {
         let mut d = h[j * n + j] + shift;
         for k in 0..j {
@@ -115,6 +115,22 @@ fn cholesky(h: &[f64], n: usize, shift: f64, l: &mut [f64]) -> bool {
         }
     }
     true
+}
+
+/// Solves (L Lᵀ) x = b in place for a factor from [`cholesky`].
+pub(crate) fn cholesky_solve(l: &[f64], n: usize, x: &mut [f64]) {
+    for i in 0..n {
+        let row = &l[i * n..i * n + i];
+        let s: f64 = row.iter().zip(x.iter()).map(|(a, b)| a * b).sum();
+        x[i] = (x[i] - s) * l[i * n + i];
+    }
+    for i in (0..n).rev() {
+        let mut s = x[i];
+        for k in i + 1..n {
+            s -= l[k * n + i] * x[k];
+        }
+        x[i] = s * l[i * n + i];
+    }
 }
 
 impl Index<(usize, usize)> for HessianMatrix {
@@ -143,19 +159,7 @@ impl ArgminDot<Params, Params> for HessianMatrix {
             }
             return x;
         }
-        let l = &self.data[n * n..2 * n * n];
-        for i in 0..n {
-            let row = &l[i * n..i * n + i];
-            let s: f64 = row.iter().zip(x.iter()).map(|(a, b)| a * b).sum();
-            x[i] = (x[i] - s) * l[i * n + i];
-        }
-        for i in (0..n).rev() {
-            let mut s = x[i];
-            for k in i + 1..n {
-                s -= l[k * n + i] * x[k];
-            }
-            x[i] = s * l[i * n + i];
-        }
+        cholesky_solve(&self.data[n * n..2 * n * n], n, x.as_mut_slice());
         x
     }
 }
@@ -213,7 +217,14 @@ struct Cache {
 pub(crate) struct PhysicalEval {
     pub f: f64,
     pub g: [f64; MAX_PARAMS],
+    /// Gradient of the multiplier part Σ λ_t c_t / width_t (zero without
+    /// multipliers).
+    pub gl: [f64; MAX_PARAMS],
     pub h: [[f64; MAX_PARAMS]; MAX_PARAMS],
+    /// Residuals c_t (GeV).
+    pub c: [f64; MAX_TERMS],
+    /// ∇_θ c_t (filled with derivatives only).
+    pub dc: [[f64; MAX_PARAMS]; MAX_TERMS],
 }
 
 /// The kinematic-fit χ² for one [`FitInput`], as an argmin problem.
@@ -639,10 +650,26 @@ impl KinematicChi2 {
 
     /// Cost and (optionally) its gradient and Hessian in θ.
     pub(crate) fn eval_physical(&self, th: &[f64; MAX_PARAMS], derivatives: bool) -> PhysicalEval {
+        self.eval_physical_with(th, derivatives, None)
+    }
+
+    /// Cost, residuals and (optionally) derivatives in θ. With
+    /// `multipliers` λ, the Hessian is that of the Lagrangian
+    /// cost + Σ_t λ_t c_t / width_t and `gl` holds the gradient of the
+    /// multiplier part (the cost's own gradient stays in `g`).
+    pub(crate) fn eval_physical_with(
+        &self,
+        th: &[f64; MAX_PARAMS],
+        derivatives: bool,
+        multipliers: Option<&[f64; MAX_TERMS]>,
+    ) -> PhysicalEval {
         let mut out = PhysicalEval {
             f: 0.0,
             g: [0.0; MAX_PARAMS],
+            gl: [0.0; MAX_PARAMS],
             h: [[0.0; MAX_PARAMS]; MAX_PARAMS],
+            c: [0.0; MAX_TERMS],
+            dc: [[0.0; MAX_PARAMS]; MAX_TERMS],
         };
         for k in 0..self.0.n_common {
             if th[self.common_index(k)] <= 0.0 {
@@ -672,20 +699,23 @@ impl KinematicChi2 {
         let nu_p4 = self
             .neutrino_index()
             .map(|k| neutrino_p4(th[k], th[k + 1], th[k + 2]));
-        for term in &self.0.terms[..self.0.n_terms] {
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
             let sum = sums[term.composite];
             let m2 = sum.dot(&sum);
             let mt = self.target_mass(term, th);
             let c = (m2 - mt * mt) / (2.0 * mt);
+            out.c[t] = c;
             out.f += term.linear * c + term.quadratic * c * c;
             if !derivatives {
                 continue;
             }
-            // d(a c + b c²)/dc and its second derivative.
+            // d(a c + b c²)/dc and its second derivative; the multiplier
+            // adds λ/width to the first.
             let w1 = term.linear + 2.0 * term.quadratic * c;
+            let wl = multipliers.map_or(0.0, |l| l[t] / term.width);
             let w2 = 2.0 * term.quadratic;
             let dm2 = self.mass2_gradient(term.composite, &sum, nu_p4);
-            let mut dc = [0.0; MAX_PARAMS];
+            let dc = &mut out.dc[t];
             for j in 0..self.0.n_params {
                 dc[j] = dm2[j] / (2.0 * mt);
             }
@@ -698,24 +728,29 @@ impl KinematicChi2 {
             }
             for i in 0..self.0.n_params {
                 out.g[i] += w1 * dc[i];
-                if dc[i] != 0.0 {
+                out.gl[i] += wl * dc[i];
+                if w2 != 0.0 && dc[i] != 0.0 {
                     for j in 0..self.0.n_params {
                         out.h[i][j] += w2 * dc[i] * dc[j];
                     }
                 }
             }
-            // w1 · ∇²c: the m² part scaled by 1/(2M) ...
-            self.add_mass2_hessian(term.composite, &sum, nu_p4, w1 / (2.0 * mt), &mut out.h);
+            let wc = w1 + wl;
+            if wc == 0.0 {
+                continue;
+            }
+            // wc · ∇²c: the m² part scaled by 1/(2M) ...
+            self.add_mass2_hessian(term.composite, &sum, nu_p4, wc / (2.0 * mt), &mut out.h);
             // ... and, for a free common mass, the M rows.
             if let Some(km) = common {
                 for j in 0..self.0.n_params {
                     if j != km && dm2[j] != 0.0 {
-                        let v = -w1 * dm2[j] / (2.0 * mt * mt);
+                        let v = -wc * dm2[j] / (2.0 * mt * mt);
                         out.h[j][km] += v;
                         out.h[km][j] += v;
                     }
                 }
-                out.h[km][km] += w1 * m2 / (mt * mt * mt);
+                out.h[km][km] += wc * m2 / (mt * mt * mt);
             }
         }
         if !out.f.is_finite() {
@@ -824,6 +859,80 @@ impl KinematicChi2 {
     }
 }
 
+/// What one Newton–Lagrange iteration needs at a point x (internal
+/// parameters): the cost with its gradient, the Hessian of the Lagrangian
+/// and the scaled constraint residuals c̃_t = c_t / width_t with their
+/// Jacobian. Arrays are row-major over the leading n (parameters) and m
+/// (terms) entries.
+pub(crate) struct Expansion {
+    /// Cost (+∞ outside the domain: a common mass ≤ 0).
+    pub f: f64,
+    /// ∇_x cost.
+    pub g: [f64; MAX_PARAMS],
+    /// ∇²_x (cost + Σ_t λ_t c̃_t), row-major n×n.
+    pub h: [f64; MAX_PARAMS * MAX_PARAMS],
+    /// c̃_t.
+    pub c: [f64; MAX_TERMS],
+    /// ∂c̃_t/∂x_j, row t.
+    pub a: [[f64; MAX_PARAMS]; MAX_TERMS],
+}
+
+impl Expansion {
+    /// All zeros (a placeholder until the first evaluation).
+    pub(crate) fn empty() -> Self {
+        Expansion {
+            f: 0.0,
+            g: [0.0; MAX_PARAMS],
+            h: [0.0; MAX_PARAMS * MAX_PARAMS],
+            c: [0.0; MAX_TERMS],
+            a: [[0.0; MAX_PARAMS]; MAX_TERMS],
+        }
+    }
+}
+
+impl KinematicChi2 {
+    /// The [`Expansion`] at internal parameters `x` with multipliers λ of
+    /// the scaled residuals.
+    pub(crate) fn expand(&self, x: &Params, multipliers: &[f64; MAX_TERMS]) -> Expansion {
+        let th = self.to_physical(x);
+        let ev = self.eval_physical_with(&th, true, Some(multipliers));
+        let n = self.0.n_params;
+        let mut out = Expansion::empty();
+        out.f = ev.f;
+        if !ev.f.is_finite() {
+            return out;
+        }
+        let (d1, d2) = self.jacobian(&th);
+        for i in 0..n {
+            out.g[i] = d1[i] * ev.g[i];
+            for j in 0..n {
+                out.h[i * n + j] = d1[i] * d1[j] * ev.h[i][j];
+            }
+            out.h[i * n + i] += d2[i] * (ev.g[i] + ev.gl[i]);
+        }
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
+            let inv_w = 1.0 / term.width;
+            out.c[t] = ev.c[t] * inv_w;
+            for j in 0..n {
+                out.a[t][j] = ev.dc[t][j] * d1[j] * inv_w;
+            }
+        }
+        out
+    }
+
+    /// Cost and scaled residuals c̃_t = c_t / width_t at internal
+    /// parameters `x` (no derivatives; cost +∞ outside the domain).
+    pub(crate) fn value_and_residuals(&self, x: &Params) -> (f64, [f64; MAX_TERMS]) {
+        let th = self.to_physical(x);
+        let ev = self.eval_physical_with(&th, false, None);
+        let mut c = ev.c;
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
+            c[t] /= term.width;
+        }
+        (ev.f, c)
+    }
+}
+
 impl CostFunction for KinematicChi2 {
     type Param = Params;
     type Output = f64;
@@ -873,5 +982,118 @@ pub(crate) fn signed_sqrt(m2: f64) -> f64 {
         m2.sqrt()
     } else {
         -(-m2).sqrt()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::input::{Composite, Constraint, FitInput, Measured, NeutrinoStart};
+
+    /// A bW-pair-like input: 4 jets, a muon, a neutrino, two W masses and
+    /// an equal-mass pair.
+    fn input() -> FitInput {
+        let mut input = FitInput::new();
+        let jets = [
+            (120.0, 0.3, 0.1, 8.0),
+            (60.0, -0.5, 1.3, 5.0),
+            (45.0, 0.9, 2.2, 4.0),
+            (150.0, -1.1, -2.0, 9.0),
+        ];
+        for (pt, eta, phi, m) in jets {
+            let p4 = FourMomentum::from_pt_eta_phi_m(pt, eta, phi, m);
+            input.add_object(Measured::jet(p4)).unwrap();
+        }
+        let mu = FourMomentum::from_pt_eta_phi_m(70.0, 0.2, -1.0, 0.1);
+        let lep = input.add_object(Measured::muon(mu)).unwrap();
+        input
+            .set_neutrino(NeutrinoStart {
+                p3: [40.0, -30.0, 25.0],
+                met: [45.0, -25.0],
+                met_cov: [300.0, 20.0, 250.0],
+            })
+            .unwrap();
+        let wh = input.add_composite(Composite::of(&[1, 2], false)).unwrap();
+        let wl = input.add_composite(Composite::of(&[lep], true)).unwrap();
+        let bh = input
+            .add_composite(Composite::of(&[0, 1, 2], false))
+            .unwrap();
+        let bl = input.add_composite(Composite::of(&[3, lep], true)).unwrap();
+        input.add_constraint(Constraint::w_mass(wh)).unwrap();
+        input.add_constraint(Constraint::w_mass(wl)).unwrap();
+        input
+            .add_constraint(Constraint::EqualMass {
+                a: bh,
+                b: bl,
+                width: 25.0,
+            })
+            .unwrap();
+        input
+    }
+
+    /// The solver's expansion (cost gradient, residual Jacobian, Hessian
+    /// of the Lagrangian) against central finite differences, for both
+    /// soft and constraint-only weights.
+    #[test]
+    fn expansion_matches_finite_differences() {
+        let model = ResolutionModel::default();
+        {
+            for hard in [false, true] {
+                let mut p = KinematicChi2::new(&input(), &model).unwrap();
+                if hard {
+                    for t in 0..p.n_terms() {
+                        p.set_term_weights(t, 0.0, 0.0);
+                    }
+                }
+                let (n, m) = (p.n_params(), p.n_terms());
+                let mut x = Params::zeros();
+                for i in 0..n {
+                    x[i] = 0.3 * ((i as f64) * 1.7).sin();
+                }
+                let lambda = [
+                    0.7, -1.3, 0.4, 2.1, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0,
+                ];
+                let e = p.expand(&x, &lambda);
+                let lagrangian = |x: &Params| {
+                    let (f, c) = p.value_and_residuals(x);
+                    f + (0..m).map(|t| lambda[t] * c[t]).sum::<f64>()
+                };
+                let h = 1e-5;
+                for i in 0..n {
+                    let (mut xp, mut xm) = (x, x);
+                    xp[i] += h;
+                    xm[i] -= h;
+                    let (fp, cp) = p.value_and_residuals(&xp);
+                    let (fm, cm) = p.value_and_residuals(&xm);
+                    let fd = (fp - fm) / (2.0 * h);
+                    assert!((fd - e.g[i]).abs() < 1e-5 * (1.0 + fd.abs()), "g[{i}]");
+                    for t in 0..m {
+                        let fd = (cp[t] - cm[t]) / (2.0 * h);
+                        assert!(
+                            (fd - e.a[t][i]).abs() < 1e-5 * (1.0 + fd.abs()),
+                            "a[{t}][{i}]"
+                        );
+                    }
+                    for j in 0..n {
+                        let mut v = [0.0; 4];
+                        for (k, (si, sj)) in [(1.0, 1.0), (1.0, -1.0), (-1.0, 1.0), (-1.0, -1.0)]
+                            .iter()
+                            .enumerate()
+                        {
+                            let mut xx = x;
+                            xx[i] += si * 1e-4;
+                            xx[j] += sj * 1e-4;
+                            v[k] = lagrangian(&xx);
+                        }
+                        let fd = (v[0] - v[1] - v[2] + v[3]) / 4e-8;
+                        let an = e.h[i * n + j];
+                        assert!(
+                            (fd - an).abs() < 1e-3 * (1.0 + an.abs()),
+                            "hard {hard} h[{i}][{j}]: {an} vs {fd}"
+                        );
+                    }
+                }
+            }
+        }
     }
 }

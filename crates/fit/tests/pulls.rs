@@ -165,7 +165,10 @@ fn run_pulls(scale: f64, events: usize, seed: u64) -> Summary {
         pulls[6].push((nu.py() - measured.met[1]) / (measured.met_cov[2] - sig[1] * sig[1]).sqrt());
     }
     // At most 0.1 % of right-assignment fits may stop unconverged.
-    assert!(failed * 1000 <= events, "{failed} of {events} fits did not converge");
+    assert!(
+        failed * 1000 <= events,
+        "{failed} of {events} fits did not converge"
+    );
     let mut means = [0.0; 7];
     let mut widths = [0.0; 7];
     for (k, p) in pulls.iter().enumerate() {
