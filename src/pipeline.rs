@@ -157,6 +157,12 @@ pub struct Reconstruction {
     pub st_unclaimed: Option<f64>,
     /// The search result (ranked assignments, status, work done).
     pub search: SearchOutcome,
+    /// Position in `search.ranked` of the reported assignment. Without the
+    /// fit it is 0, the lowest search χ². With the fit every ranked
+    /// assignment is fitted and the one with the best fit wins
+    /// ([`quarry_fit::compare_fits`]: converged fits first, then the lowest
+    /// fit χ²; search order breaks ties).
+    pub chosen: usize,
     /// Truth match of the best assignment; `None` without truth labels or
     /// without an assignment.
     pub truth: Option<TruthMatch>,
@@ -167,9 +173,11 @@ pub struct Reconstruction {
 }
 
 impl Reconstruction {
-    /// The best assignment, if any.
+    /// The reported assignment, if any: the lowest search χ², or with the
+    /// fit the best-fitting of the ranked assignments (see
+    /// [`chosen`](Self::chosen)).
     pub fn best(&self) -> Option<&RankedAssignment> {
-        self.search.best()
+        self.search.ranked.get(self.chosen)
     }
 
     /// Mass of the named composite in the best assignment \[GeV\].
@@ -649,6 +657,7 @@ fn bad(event_id: u64, weight: f64, h: &Arc<Hypothesis>, reason: String) -> Recon
         vars: None,
         st_unclaimed: None,
         search: empty_outcome(),
+        chosen: 0,
         truth: None,
         fit: None,
     }
@@ -700,11 +709,17 @@ impl Worker<'_> {
             .zip(&p.hypotheses)
             .map(|(search, h)| {
                 let (mut status, mut reason) = search_status(&search.status);
-                let truth = search.best().and_then(|b| h.truth_match(&event, b));
-                let fit = match (&mut self.fitter, search.best()) {
-                    (Some(fitter), Some(best)) => Some(fit_best(fitter, h, &event, best)),
-                    _ => None,
+                let (chosen, fit) = match &mut self.fitter {
+                    Some(fitter) if !search.ranked.is_empty() => {
+                        let (chosen, fit) = fit_and_rerank(fitter, h, &event, &search.ranked);
+                        (chosen, Some(fit))
+                    }
+                    _ => (0, None),
                 };
+                let truth = search
+                    .ranked
+                    .get(chosen)
+                    .and_then(|b| h.truth_match(&event, b));
                 match &fit {
                     Some(Ok(f)) if f.status == FitStatus::Converged => {}
                     Some(Ok(f)) if f.status == FitStatus::CovarianceFailed => {}
@@ -730,6 +745,7 @@ impl Worker<'_> {
                     vars: Some(vars),
                     st_unclaimed,
                     search,
+                    chosen,
                     truth,
                     fit,
                 }
@@ -789,6 +805,43 @@ fn unclaimed(event: &Event, a: &RankedAssignment) -> Option<f64> {
         })
         .collect();
     quarry_vars::st_unclaimed(event, &used).ok()
+}
+
+/// Fits every ranked assignment and picks the best fit: the kinematic fit
+/// re-ranks the search's K best, since the right assignment often is not the
+/// one with the lowest search χ² but fits the constraints better once
+/// energies may move within their resolutions. Returns the chosen position
+/// and its fit. An assignment that cannot become a fit input ranks last;
+/// if none can, the first one's error is returned.
+fn fit_and_rerank(
+    fitter: &mut KinematicFitter,
+    h: &Hypothesis,
+    event: &Event,
+    ranked: &[RankedAssignment],
+) -> (usize, Result<FitResult, FitInputError>) {
+    let mut best: Option<(usize, FitResult)> = None;
+    let mut first_error = None;
+    for (i, assignment) in ranked.iter().enumerate() {
+        match fit_best(fitter, h, event, assignment) {
+            Ok(result) => {
+                let better = best.as_ref().is_none_or(|(_, b)| {
+                    quarry_fit::compare_fits(&result, b) == std::cmp::Ordering::Less
+                });
+                if better {
+                    best = Some((i, result));
+                }
+            }
+            Err(e) => {
+                first_error.get_or_insert(e);
+            }
+        }
+    }
+    match (best, first_error) {
+        (Some((i, result)), _) => (i, Ok(result)),
+        (None, Some(e)) => (0, Err(e)),
+        // `ranked` is non-empty, so one of the two is set.
+        (None, None) => (0, Err(FitInputError::Underconstrained)),
+    }
 }
 
 /// Builds the fit input from a search assignment and fits it.
