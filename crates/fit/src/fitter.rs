@@ -11,16 +11,17 @@ use argmin::core::{
 use argmin::solver::trustregion::TrustRegion;
 
 use crate::dogleg::DoglegStep;
-use crate::newton::{NewtonLagrange, Progress};
+use crate::newton::{NewtonLagrange, Progress, Workspace};
 use argmin_math::{ArgminDot, ArgminInv};
-use nalgebra::{DMatrix, DVector};
 use quarry_lorentz::FourMomentum;
 use quarry_resolution::ResolutionModel;
 
 use crate::input::{
     FitInput, FitInputError, MAX_COMMON_MASSES, MAX_COMPOSITES, MAX_OBJECTS, MAX_PARAMS,
 };
-use crate::problem::{HessianMatrix, KinematicChi2, Params, MAX_TERMS};
+use crate::problem::{
+    cholesky, forward_solve, Expansion, HessianMatrix, KinematicChi2, Params, MAX_TERMS,
+};
 use crate::stats::chi2_survival;
 
 /// How constraints enter the fit.
@@ -357,12 +358,18 @@ enum Outcome {
 pub struct KinematicFitter {
     model: ResolutionModel,
     config: FitConfig,
+    /// The solver's work arrays, reused by every fit.
+    workspace: Box<Workspace>,
 }
 
 impl KinematicFitter {
     /// A fitter with this resolution model and configuration.
     pub fn new(model: ResolutionModel, config: FitConfig) -> Self {
-        KinematicFitter { model, config }
+        KinematicFitter {
+            model,
+            config,
+            workspace: Box::default(),
+        }
     }
     /// The configuration.
     pub fn config(&self) -> &FitConfig {
@@ -388,7 +395,13 @@ impl KinematicFitter {
         }
         let budget = self.config.max_iterations.min(NEWTON_MAX_ITERATIONS);
         let (p, x, iterations, progress) = self.newton(problem, hard, budget);
-        problem = p;
+        problem = match p {
+            Some(p) => p,
+            None => match KinematicChi2::new(input, &self.model) {
+                Ok(p) => p,
+                Err(e) => return FitResult::failed(input, FitStatus::InvalidInput(e), iterations),
+            },
+        };
         let (x, status, iterations) = if progress == Progress::Converged {
             (x, FitStatus::Converged, iterations)
         } else {
@@ -409,29 +422,30 @@ impl KinematicFitter {
         }
     }
 
-    /// One argmin run of the Newton(–Lagrange) solver from x = 0.
+    /// One argmin run of the Newton(–Lagrange) solver from x = 0. The
+    /// problem comes back unless argmin reported an error (then `None`).
     fn newton(
-        &self,
+        &mut self,
         problem: KinematicChi2,
         hard: bool,
         max_iterations: u32,
-    ) -> (KinematicChi2, Params, u32, Progress) {
+    ) -> (Option<KinematicChi2>, Params, u32, Progress) {
         let solver = NewtonLagrange::new(
+            &mut self.workspace,
             Params::zeros(),
             hard,
             self.config.decrement_tolerance,
             self.config.hard_tolerance,
         );
-        let backup = problem.clone();
         let run = Executor::new(problem, solver)
             .configure(|s| s.max_iters(u64::from(max_iterations)))
             .timer(false)
             .run();
         match run {
-            Err(_) => (backup, Params::zeros(), 0, Progress::Failed),
+            Err(_) => (None, Params::zeros(), 0, Progress::Failed),
             Ok(mut res) => {
                 let iterations = res.state.get_iter() as u32;
-                let problem = res.problem.take_problem().unwrap_or(backup);
+                let problem = res.problem.take_problem();
                 (problem, *res.solver.x(), iterations, res.solver.progress())
             }
         }
@@ -579,7 +593,7 @@ impl KinematicFitter {
         let th = problem.to_physical(x);
         let (objects, neutrino) = problem.four_momenta(&th);
         let chi2 = match self.config.mode {
-            ConstraintMode::Soft => problem.eval_physical(&th, false).f,
+            ConstraintMode::Soft => problem.value_physical(&th).0,
             ConstraintMode::Hard => problem.measurement_chi2(&th),
         };
         let ndf = input.ndf().max(0) as u32;
@@ -608,9 +622,9 @@ impl KinematicFitter {
             common,
         };
         if self.config.uncertainties && status == FitStatus::Converged {
-            match covariance(problem, &th, self.config.mode) {
-                Some(cov) => {
-                    let sd = |i: usize| cov[(i, i)].max(0.0).sqrt();
+            match covariance_diagonal(problem, &th, self.config.mode) {
+                Some(var) => {
+                    let sd = |i: usize| var[i].max(0.0).sqrt();
                     for i in 0..problem.n_objects() {
                         result.scale_sigmas[i] = sd(i);
                     }
@@ -629,7 +643,7 @@ impl KinematicFitter {
     }
 }
 
-/// Covariance of the fitted physical parameters θ.
+/// Diagonal of the covariance of the fitted physical parameters θ.
 ///
 /// Soft mode: C = 2 H⁻¹ with H the exact Hessian of the χ² at the minimum
 /// (the usual Δχ² = 1 convention). Hard mode: the linearised
@@ -638,41 +652,86 @@ impl KinematicFitter {
 /// measured parameters, zero for pz and common masses) and A = ∂c/∂θ;
 /// computed as G⁻¹ − G⁻¹Aᵀ(AG⁻¹Aᵀ)⁻¹AG⁻¹ with G = W + AᵀRA, R = diag(1/width²),
 /// which has the same block and is invertible when the constraints fix
-/// every unmeasured parameter.
-fn covariance(
+/// every unmeasured parameter. With G = LLᵀ, V = L⁻¹Aᵀ, S = VᵀV = KKᵀ and
+/// y = L⁻¹e_i: C_ii = |y|² − |K⁻¹Vᵀy|². Stack arrays only.
+fn covariance_diagonal(
     problem: &KinematicChi2,
     th: &[f64; MAX_PARAMS],
     mode: ConstraintMode,
-) -> Option<DMatrix<f64>> {
+) -> Option<[f64; MAX_PARAMS]> {
     let n = problem.n_params();
+    let mut e = Expansion::empty();
+    problem.eval_physical_into(th, None, &mut e);
+    if !e.f.is_finite() {
+        return None;
+    }
+    let mut g = [0.0; MAX_PARAMS * MAX_PARAMS];
+    let mut l = [0.0; MAX_PARAMS * MAX_PARAMS];
+    let mut var = [0.0; MAX_PARAMS];
+    let unit = |i: usize| {
+        let mut y = [0.0; MAX_PARAMS];
+        y[i] = 1.0;
+        y
+    };
     match mode {
         ConstraintMode::Soft => {
-            let ev = problem.eval_physical(th, true);
-            let h = DMatrix::from_fn(n, n, |i, j| 0.5 * ev.h[i][j]);
-            h.cholesky().map(|c| c.inverse())
+            // C = (H/2)⁻¹.
+            for (gi, hi) in g[..n * n].iter_mut().zip(&e.h[..n * n]) {
+                *gi = 0.5 * hi;
+            }
+            if !cholesky(&g, n, 0.0, &mut l) {
+                return None;
+            }
+            for (i, v) in var[..n].iter_mut().enumerate() {
+                let mut y = unit(i);
+                forward_solve(&l, n, &mut y);
+                *v = y[..n].iter().map(|a| a * a).sum();
+            }
         }
         ConstraintMode::Hard => {
             let m = problem.n_terms();
             let w = problem.measurement_weight();
-            let rows = problem.residual_gradients(th);
-            let a = DMatrix::from_fn(m, n, |t, j| rows[t][j]);
-            let r = DVector::from_fn(m, |t, _| {
-                let wt = problem.term_width(t);
-                1.0 / (wt * wt)
-            });
-            let mut g = DMatrix::from_fn(n, n, |i, j| w[i][j]);
-            for t in 0..m {
-                for i in 0..n {
-                    for j in 0..n {
-                        g[(i, j)] += r[t] * a[(t, i)] * a[(t, j)];
+            for i in 0..n {
+                for j in 0..n {
+                    let mut v = w[i][j];
+                    for t in 0..m {
+                        let wt = problem.term_width(t);
+                        v += e.a[t][i] * e.a[t][j] / (wt * wt);
                     }
+                    g[i * n + j] = v;
                 }
             }
-            let g_inv = g.cholesky()?.inverse();
-            let ga = &g_inv * a.transpose(); // n × m
-            let s = &a * &ga; // m × m
-            let s_inv = s.cholesky()?.inverse();
-            Some(&g_inv - &ga * s_inv * ga.transpose())
+            if !cholesky(&g, n, 0.0, &mut l) {
+                return None;
+            }
+            let mut vrows = [[0.0; MAX_PARAMS]; MAX_TERMS];
+            let mut s = [0.0; MAX_TERMS * MAX_TERMS];
+            let mut k = [0.0; MAX_TERMS * MAX_TERMS];
+            for t in 0..m {
+                vrows[t][..n].copy_from_slice(&e.a[t][..n]);
+                forward_solve(&l, n, &mut vrows[t]);
+            }
+            for a in 0..m {
+                for b in 0..m {
+                    s[a * m + b] = (0..n).map(|i| vrows[a][i] * vrows[b][i]).sum();
+                }
+            }
+            if !cholesky(&s, m, 0.0, &mut k) {
+                return None;
+            }
+            for (i, v) in var[..n].iter_mut().enumerate() {
+                let mut y = unit(i);
+                forward_solve(&l, n, &mut y);
+                let mut z = [0.0; MAX_TERMS];
+                for t in 0..m {
+                    z[t] = (0..n).map(|j| vrows[t][j] * y[j]).sum();
+                }
+                forward_solve(&k, m, &mut z);
+                let yy: f64 = y[..n].iter().map(|a| a * a).sum();
+                let zz: f64 = z[..m].iter().map(|a| a * a).sum();
+                *v = yy - zz;
+            }
         }
     }
+    Some(var)
 }

@@ -14,31 +14,35 @@
 //!
 //! with the exact Hessian of the Lagrangian (so convergence near the
 //! solution is quadratic), by the range-space method: G = H + 2ρÃᵀÃ (the
-//! same Δ, since ÃΔ = −c̃) is factorised by Cholesky, then the m×m Schur
-//! complement Ã G⁻¹ Ãᵀ. A positive-definite G certifies a local minimum on
-//! the constraint surface; where G is not positive definite for any
-//! tried ρ, µ·I is added (a modified Newton step). The step length comes
-//! from a backtracking line search with the filter test of R. Fletcher and
-//! S. Leyffer, "Nonlinear programming without a penalty function", Math.
-//! Program. 91 (2002) 239: a trial point is accepted if, against the
-//! current point and every earlier iterate, it lowers either the
-//! constraint violation Σ|c̃_t| or f by a margin. Unlike a merit function
-//! this needs no penalty weight and accepts most full Newton steps even
-//! far from the constraint surface; a rejected full step is first retried
-//! with a second-order correction (J. Nocedal and S. J. Wright, *Numerical
-//! Optimization*, 2nd ed., Springer 2006, §15.5/§18.3), which avoids the
-//! Maratos effect near the solution.
+//! same Δ, since ÃΔ = −c̃) is factorised by Cholesky, G = LLᵀ, then the m×m
+//! Schur complement S = Ã G⁻¹ Ãᵀ = WᵀW with W = L⁻¹Ãᵀ. A positive-definite
+//! G certifies a local minimum on the constraint surface; where G is not
+//! positive definite for any tried ρ, µ·I is added (a modified Newton
+//! step). The step length comes from a backtracking line search with the
+//! filter test of R. Fletcher and S. Leyffer, "Nonlinear programming
+//! without a penalty function", Math. Program. 91 (2002) 239: a trial
+//! point is accepted if, against the current point and every earlier
+//! iterate, it lowers either the constraint violation Σ|c̃_t| or f by a
+//! margin. Unlike a merit function this needs no penalty weight and
+//! accepts most full Newton steps even far from the constraint surface; a
+//! rejected full step is first retried with a second-order correction
+//! (J. Nocedal and S. J. Wright, *Numerical Optimization*, 2nd ed.,
+//! Springer 2006, §15.5/§18.3), which avoids the Maratos effect near the
+//! solution.
 //!
 //! Soft mode is the same iteration without constraints: Newton's method
 //! with a modified-Cholesky Hessian and an Armijo line search on f.
 //!
-//! All work arrays are inline; the argmin state carries only the parameter
-//! vector.
+//! The solver borrows its work arrays from the fitter ([`Workspace`]), so
+//! nothing is allocated or copied per fit; the argmin state carries only
+//! the parameter vector.
 
 use argmin::core::{Error, IterState, Problem, Solver, TerminationReason, TerminationStatus, KV};
 
 use crate::input::MAX_PARAMS;
-use crate::problem::{cholesky, cholesky_solve, Expansion, KinematicChi2, Params, MAX_TERMS};
+use crate::problem::{
+    back_solve, cholesky, forward_solve, Expansion, KinematicChi2, Params, MAX_TERMS,
+};
 
 /// argmin state of the Newton–Lagrange solver: parameters and cost only.
 pub(crate) type NewtonState = IterState<Params, (), (), (), (), f64>;
@@ -57,50 +61,71 @@ pub(crate) enum Progress {
 
 /// Armijo sufficient-decrease constant.
 const ARMIJO: f64 = 1e-4;
-/// Most step halvings per line search.
-const MAX_BACKTRACKS: usize = 30;
 /// Margin γ of the filter test.
 const FILTER_MARGIN: f64 = 1e-4;
 /// Most remembered iterates in the filter.
 const MAX_FILTER: usize = 48;
+/// Most step halvings per line search.
+const MAX_BACKTRACKS: usize = 30;
 /// Weights ρ of the 2ρÃᵀÃ term tried in turn for a positive-definite G.
 const RHO_STEPS: [f64; 3] = [1.0, 1e2, 1e4];
 
+/// Work arrays of the solver, owned by the fitter and reused for every fit.
+#[derive(Clone)]
+pub(crate) struct Workspace {
+    current: Expansion,
+    filter: [(f64, f64); MAX_FILTER],
+}
+
+impl Default for Workspace {
+    fn default() -> Self {
+        Workspace {
+            current: Expansion::empty(),
+            filter: [(0.0, 0.0); MAX_FILTER],
+        }
+    }
+}
+
+impl std::fmt::Debug for Workspace {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Workspace")
+    }
+}
+
 /// Newton / Newton–Lagrange iteration (see the module docs).
-pub(crate) struct NewtonLagrange {
+pub(crate) struct NewtonLagrange<'w> {
+    ws: &'w mut Workspace,
     constrained: bool,
     tolerance: f64,
     violation_tolerance: f64,
     x: Params,
     lambda: [f64; MAX_TERMS],
-    filter: [(f64, f64); MAX_FILTER],
     n_filter: usize,
     progress: Progress,
-    current: Expansion,
 }
 
-impl NewtonLagrange {
+impl<'w> NewtonLagrange<'w> {
     /// A solver starting at `x0`. `constrained`: the problem's terms are
     /// equality constraints (their cost weights must be zero), met to
     /// `violation_tolerance` GeV in |m − M|. `tolerance`: convergence when
     /// the Newton decrement (soft) or the squared step length in σ units
     /// (hard) falls below it.
     pub(crate) fn new(
+        ws: &'w mut Workspace,
         x0: Params,
         constrained: bool,
         tolerance: f64,
         violation_tolerance: f64,
     ) -> Self {
         NewtonLagrange {
+            ws,
             constrained,
             tolerance,
             violation_tolerance,
             x: x0,
             lambda: [0.0; MAX_TERMS],
-            filter: [(0.0, 0.0); MAX_FILTER],
             n_filter: 0,
             progress: Progress::Running,
-            current: Expansion::empty(),
         }
     }
 
@@ -125,17 +150,23 @@ impl NewtonLagrange {
     fn acceptable(&self, f: f64, h: f64, f0: f64, h0: f64) -> bool {
         let beats =
             |(fj, hj): (f64, f64)| h <= (1.0 - FILTER_MARGIN) * hj || f <= fj - FILTER_MARGIN * h;
-        f.is_finite() && beats((f0, h0)) && self.filter[..self.n_filter].iter().all(|&e| beats(e))
+        f.is_finite()
+            && beats((f0, h0))
+            && self.ws.filter[..self.n_filter].iter().all(|&e| beats(e))
     }
 
+    /// Moves to `x` and expands there; false if the expansion is not
+    /// finite.
     fn accept(&mut self, problem: &KinematicChi2, x: Params) -> bool {
         self.x = x;
-        self.current = problem.expand(&self.x, &self.lambda);
-        self.current.f.is_finite() && self.current.g.iter().all(|v| v.is_finite())
+        let e = &mut self.ws.current;
+        problem.expand_into(&self.x, &self.lambda, e);
+        let n = problem.n_params();
+        e.f.is_finite() && e.g[..n].iter().all(|v| v.is_finite())
     }
 }
 
-impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
+impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
     fn name(&self) -> &str {
         "Newton-Lagrange"
     }
@@ -151,7 +182,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
         if !self.accept(p, self.x) {
             self.progress = Progress::Failed;
         }
-        let f = self.current.f;
+        let f = self.ws.current.f;
         Ok((state.param(self.x).cost(f), None))
     }
 
@@ -166,18 +197,18 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
         };
         let n = p.n_params();
         let m = if self.constrained { p.n_terms() } else { 0 };
-        let e = &self.current;
+        let e = &self.ws.current;
 
-        // G = H + 2ρÃᵀÃ, positive definite if possible.
+        // G = H + 2ρÃᵀÃ = LLᵀ, positive definite if possible.
         let mut g_mat = [0.0; MAX_PARAMS * MAX_PARAMS];
-        let mut chol = [0.0; MAX_PARAMS * MAX_PARAMS];
+        let mut l = [0.0; MAX_PARAMS * MAX_PARAMS];
         let mut factored = false;
         let rho_steps: &[f64] = if m > 0 { &RHO_STEPS } else { &[0.0] };
         let mut rho = 0.0;
         for &r in rho_steps {
             rho = r;
             fill_g(&mut g_mat, e, n, m, rho);
-            if cholesky(&g_mat, n, 0.0, &mut chol) {
+            if cholesky(&g_mat, n, 0.0, &mut l) {
                 factored = true;
                 break;
             }
@@ -188,7 +219,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
             let scale = (0..n).map(|i| g_mat[i * n + i].abs()).fold(1e-12, f64::max);
             let mut shift = 1e-8 * scale;
             for _ in 0..60 {
-                if cholesky(&g_mat, n, shift, &mut chol) {
+                if cholesky(&g_mat, n, shift, &mut l) {
                     factored = true;
                     break;
                 }
@@ -197,51 +228,53 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
             if !factored {
                 return self.fail(state);
             }
-            for i in 0..n {
-                g_mat[i * n + i] += shift;
-            }
         }
 
-        // Range-space solution of the KKT system.
-        let mut y = [[0.0; MAX_PARAMS]; MAX_TERMS]; // rows: G⁻¹ ã_t
-        let mut s_chol = [0.0; MAX_TERMS * MAX_TERMS];
-        let mut lambda_new = [0.0; MAX_TERMS];
-        let mut z = [0.0; MAX_PARAMS];
+        // Range-space solution of the KKT system:
+        // u = L⁻¹ r with r = −∇f − 2ρÃᵀc̃, W = L⁻¹Ãᵀ (rows w_t),
+        // S λ⁺ = Wᵀu + c̃, Δ = L⁻ᵀ(u − Wλ⁺).
+        let mut u = [0.0; MAX_PARAMS];
         for i in 0..n {
             let mut r = -e.g[i];
             for t in 0..m {
                 r -= 2.0 * rho * e.a[t][i] * e.c[t];
             }
-            z[i] = r;
+            u[i] = r;
         }
-        cholesky_solve(&chol, n, &mut z);
-        let mut step = z;
+        forward_solve(&l, n, &mut u);
+        let mut w = [[0.0; MAX_PARAMS]; MAX_TERMS];
+        let mut s_chol = [0.0; MAX_TERMS * MAX_TERMS];
+        let mut lambda_new = [0.0; MAX_TERMS];
+        let mut v = u;
         if m > 0 {
             let mut s = [0.0; MAX_TERMS * MAX_TERMS];
             for t in 0..m {
-                y[t][..n].copy_from_slice(&e.a[t][..n]);
-                cholesky_solve(&chol, n, &mut y[t]);
+                w[t][..n].copy_from_slice(&e.a[t][..n]);
+                forward_solve(&l, n, &mut w[t]);
             }
             for a in 0..m {
                 for b in 0..=a {
-                    let v = dot(&e.a[a][..n], &y[b][..n]);
-                    s[a * m + b] = v;
-                    s[b * m + a] = v;
+                    let sab = dot(&w[a][..n], &w[b][..n]);
+                    s[a * m + b] = sab;
+                    s[b * m + a] = sab;
                 }
             }
             if !cholesky(&s, m, 0.0, &mut s_chol) {
                 return self.fail(state);
             }
             for t in 0..m {
-                lambda_new[t] = dot(&e.a[t][..n], &z[..n]) + e.c[t];
+                lambda_new[t] = dot(&w[t][..n], &u[..n]) + e.c[t];
             }
-            cholesky_solve(&s_chol, m, &mut lambda_new);
+            forward_solve(&s_chol, m, &mut lambda_new);
+            back_solve(&s_chol, m, &mut lambda_new);
             for t in 0..m {
                 for i in 0..n {
-                    step[i] -= y[t][i] * lambda_new[t];
+                    v[i] -= w[t][i] * lambda_new[t];
                 }
             }
         }
+        let mut step = v;
+        back_solve(&l, n, &mut step);
         if !step[..n].iter().all(|v| v.is_finite()) {
             return self.fail(state);
         }
@@ -279,6 +312,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
         // Line search from the full step: Armijo on f without constraints,
         // the filter test with them.
         let h0: f64 = e.c[..m].iter().map(|v| v.abs()).sum();
+        let f0 = e.f;
         if m == 0 && (gd >= 0.0 || gd.is_nan()) {
             return self.fail(state);
         }
@@ -289,9 +323,9 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
             let (ft, ct) = p.value_and_residuals(&xt);
             let ht: f64 = ct[..m].iter().map(|v| v.abs()).sum();
             let ok = if m == 0 {
-                ft <= e.f + ARMIJO * alpha * gd
+                ft <= f0 + ARMIJO * alpha * gd
             } else {
-                self.acceptable(ft, ht, e.f, h0)
+                self.acceptable(ft, ht, f0, h0)
             };
             if ok {
                 accepted = Some((xt, alpha));
@@ -299,19 +333,26 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
             }
             if k == 0 && m > 0 && ft.is_finite() {
                 // Second-order correction: the least-G-norm step back onto
-                // the linearised constraints at the trial point.
-                let mut w = [0.0; MAX_TERMS];
-                w[..m].copy_from_slice(&ct[..m]);
-                cholesky_solve(&s_chol, m, &mut w);
-                let mut xs = xt;
+                // the linearised constraints at the trial point,
+                // −G⁻¹Ãᵀ S⁻¹ c̃(x + Δ) = −L⁻ᵀ W S⁻¹ c̃(x + Δ).
+                let mut z = [0.0; MAX_TERMS];
+                z[..m].copy_from_slice(&ct[..m]);
+                forward_solve(&s_chol, m, &mut z);
+                back_solve(&s_chol, m, &mut z);
+                let mut d = [0.0; MAX_PARAMS];
                 for t in 0..m {
                     for i in 0..n {
-                        xs[i] -= y[t][i] * w[t];
+                        d[i] -= w[t][i] * z[t];
                     }
+                }
+                back_solve(&l, n, &mut d);
+                let mut xs = xt;
+                for i in 0..n {
+                    xs[i] += d[i];
                 }
                 let (fs, cs) = p.value_and_residuals(&xs);
                 let hs: f64 = cs[..m].iter().map(|v| v.abs()).sum();
-                if self.acceptable(fs, hs, e.f, h0) {
+                if self.acceptable(fs, hs, f0, h0) {
                     accepted = Some((xs, 1.0));
                     break;
                 }
@@ -322,7 +363,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
             return self.fail(state);
         };
         if m > 0 && self.n_filter < MAX_FILTER {
-            self.filter[self.n_filter] = (e.f, h0);
+            self.ws.filter[self.n_filter] = (f0, h0);
             self.n_filter += 1;
         }
         for t in 0..m {
@@ -331,7 +372,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange {
         if !self.accept(p, x_new) {
             return self.fail(state);
         }
-        let f = self.current.f;
+        let f = self.ws.current.f;
         Ok((state.param(self.x).cost(f), None))
     }
 
@@ -361,8 +402,9 @@ fn fill_g(g: &mut [f64; MAX_PARAMS * MAX_PARAMS], e: &Expansion, n: usize, m: us
                 continue;
             }
             let ai = 2.0 * rho * a[i];
+            let row = &mut g[i * n..i * n + n];
             for j in 0..n {
-                g[i * n + j] += ai * a[j];
+                row[j] += ai * a[j];
             }
         }
     }

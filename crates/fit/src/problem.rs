@@ -119,11 +119,21 @@ pub(crate) fn cholesky(h: &[f64], n: usize, shift: f64, l: &mut [f64]) -> bool {
 
 /// Solves (L Lᵀ) x = b in place for a factor from [`cholesky`].
 pub(crate) fn cholesky_solve(l: &[f64], n: usize, x: &mut [f64]) {
+    forward_solve(l, n, x);
+    back_solve(l, n, x);
+}
+
+/// Solves L y = b in place for a factor from [`cholesky`].
+pub(crate) fn forward_solve(l: &[f64], n: usize, x: &mut [f64]) {
     for i in 0..n {
         let row = &l[i * n..i * n + i];
         let s: f64 = row.iter().zip(x.iter()).map(|(a, b)| a * b).sum();
         x[i] = (x[i] - s) * l[i * n + i];
     }
+}
+
+/// Solves Lᵀ x = y in place for a factor from [`cholesky`].
+pub(crate) fn back_solve(l: &[f64], n: usize, x: &mut [f64]) {
     for i in (0..n).rev() {
         let mut s = x[i];
         for k in i + 1..n {
@@ -213,20 +223,6 @@ struct Cache {
     h: HessianMatrix,
 }
 
-/// Value and derivatives of the cost in physical parameters θ.
-pub(crate) struct PhysicalEval {
-    pub f: f64,
-    pub g: [f64; MAX_PARAMS],
-    /// Gradient of the multiplier part Σ λ_t c_t / width_t (zero without
-    /// multipliers).
-    pub gl: [f64; MAX_PARAMS],
-    pub h: [[f64; MAX_PARAMS]; MAX_PARAMS],
-    /// Residuals c_t (GeV).
-    pub c: [f64; MAX_TERMS],
-    /// ∇_θ c_t (filled with derivatives only).
-    pub dc: [[f64; MAX_PARAMS]; MAX_TERMS],
-}
-
 /// The kinematic-fit χ² for one [`FitInput`], as an argmin problem.
 ///
 /// **Physical parameters θ** (in this order): one scale factor `s_i` per
@@ -288,6 +284,11 @@ struct Chi2Data {
     common_scale: [f64; MAX_COMMON_MASSES],
     n_common: usize,
     n_params: usize,
+    /// Minkowski products p_i·p_j of the measured objects.
+    gram: [[f64; MAX_OBJECTS]; MAX_OBJECTS],
+    /// Per term: the θ indices its residual depends on.
+    support: [[u8; MAX_PARAMS]; MAX_TERMS],
+    n_support: [u8; MAX_TERMS],
     cache: RefCell<Option<Cache>>,
 }
 
@@ -349,6 +350,9 @@ impl KinematicChi2 {
             common_scale: [1.0; MAX_COMMON_MASSES],
             n_common: 0,
             n_params: n_objects + if neutrino.is_some() { 3 } else { 0 },
+            gram: [[0.0; MAX_OBJECTS]; MAX_OBJECTS],
+            support: [[0; MAX_PARAMS]; MAX_TERMS],
+            n_support: [0; MAX_TERMS],
             cache: RefCell::new(None),
         }));
         let start_masses = problem.composite_masses(&Params::zeros());
@@ -382,6 +386,35 @@ impl KinematicChi2 {
                     push(&mut problem, b, Target::Common(k), width);
                 }
             }
+        }
+        let d = &mut *problem.0;
+        for i in 0..n_objects {
+            for j in 0..n_objects {
+                d.gram[i][j] = d.measured[i].dot(&d.measured[j]);
+            }
+        }
+        let nu_index = d.neutrino.map(|_| n_objects);
+        let common_base = n_objects + if d.neutrino.is_some() { 3 } else { 0 };
+        for t in 0..d.n_terms {
+            let term = d.terms[t];
+            let comp = d.composites[term.composite];
+            let mut k = 0;
+            let mut push = |i: usize| {
+                d.support[t][k] = i as u8;
+                k += 1;
+            };
+            for i in 0..n_objects {
+                if comp.contains_object(i) {
+                    push(i);
+                }
+            }
+            if let (true, Some(kn)) = (comp.contains_neutrino(), nu_index) {
+                (kn..kn + 3).for_each(&mut push);
+            }
+            if let Target::Common(c) = term.target {
+                push(common_base + c);
+            }
+            d.n_support[t] = k as u8;
         }
         Ok(problem)
     }
@@ -547,14 +580,7 @@ impl KinematicChi2 {
 
     /// Constraint residuals c_t (GeV) at θ.
     pub(crate) fn residuals(&self, th: &[f64; MAX_PARAMS]) -> [f64; MAX_TERMS] {
-        let sums = self.composite_sums(th);
-        let mut c = [0.0; MAX_TERMS];
-        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
-            let m2 = sums[term.composite].dot(&sums[term.composite]);
-            let mt = self.target_mass(term, th);
-            c[t] = (m2 - mt * mt) / (2.0 * mt);
-        }
-        c
+        self.value_physical(th).1
     }
 
     fn target_mass(&self, t: &Term, th: &[f64; MAX_PARAMS]) -> f64 {
@@ -595,130 +621,112 @@ impl KinematicChi2 {
         w
     }
 
-    /// Gradients ∇_θ c_t of all constraint residuals at θ (rows t).
-    pub(crate) fn residual_gradients(
-        &self,
-        th: &[f64; MAX_PARAMS],
-    ) -> [[f64; MAX_PARAMS]; MAX_TERMS] {
-        let sums = self.composite_sums(th);
-        let nu_p4 = self
-            .neutrino_index()
-            .map(|k| neutrino_p4(th[k], th[k + 1], th[k + 2]));
-        let mut rows = [[0.0; MAX_PARAMS]; MAX_TERMS];
-        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
-            let sum = sums[term.composite];
-            let mt = self.target_mass(term, th);
-            let dm2 = self.mass2_gradient(term.composite, &sum, nu_p4);
-            for j in 0..self.0.n_params {
-                rows[t][j] = dm2[j] / (2.0 * mt);
-            }
-            if let Target::Common(k) = term.target {
-                let m2 = sum.dot(&sum);
-                rows[t][self.common_index(k)] = -m2 / (2.0 * mt * mt) - 0.5;
-            }
-        }
-        rows
-    }
-
-    /// ∇_θ m² of a composite with four-momentum sum `sum`.
-    fn mass2_gradient(
-        &self,
-        composite: usize,
-        sum: &FourMomentum,
-        nu: Option<FourMomentum>,
-    ) -> [f64; MAX_PARAMS] {
-        let c = &self.0.composites[composite];
-        let mut d = [0.0; MAX_PARAMS];
-        let mut mask = c.object_mask();
-        while mask != 0 {
-            let i = mask.trailing_zeros() as usize;
-            mask &= mask - 1;
-            d[i] = 2.0 * sum.dot(&self.0.measured[i]);
-        }
-        if c.contains_neutrino() {
-            if let (Some(nu), Some(k)) = (nu, self.neutrino_index()) {
-                let ratio = sum.e() / nu.e();
-                let p = nu.p3();
-                let s = sum.p3();
-                for a in 0..3 {
-                    d[k + a] = 2.0 * (ratio * p[a] - s[a]);
-                }
-            }
-        }
-        d
-    }
-
-    /// Cost and (optionally) its gradient and Hessian in θ.
-    pub(crate) fn eval_physical(&self, th: &[f64; MAX_PARAMS], derivatives: bool) -> PhysicalEval {
-        self.eval_physical_with(th, derivatives, None)
-    }
-
-    /// Cost, residuals and (optionally) derivatives in θ. With
-    /// `multipliers` λ, the Hessian is that of the Lagrangian
-    /// cost + Σ_t λ_t c_t / width_t and `gl` holds the gradient of the
-    /// multiplier part (the cost's own gradient stays in `g`).
-    pub(crate) fn eval_physical_with(
-        &self,
-        th: &[f64; MAX_PARAMS],
-        derivatives: bool,
-        multipliers: Option<&[f64; MAX_TERMS]>,
-    ) -> PhysicalEval {
-        let mut out = PhysicalEval {
-            f: 0.0,
-            g: [0.0; MAX_PARAMS],
-            gl: [0.0; MAX_PARAMS],
-            h: [[0.0; MAX_PARAMS]; MAX_PARAMS],
-            c: [0.0; MAX_TERMS],
-            dc: [[0.0; MAX_PARAMS]; MAX_TERMS],
-        };
+    /// Cost and raw residuals c_t (GeV) at θ, without derivatives (cost
+    /// +∞ outside the domain: a common mass ≤ 0).
+    pub(crate) fn value_physical(&self, th: &[f64; MAX_PARAMS]) -> (f64, [f64; MAX_TERMS]) {
+        let mut c = [0.0; MAX_TERMS];
         for k in 0..self.0.n_common {
             if th[self.common_index(k)] <= 0.0 {
-                out.f = f64::INFINITY;
-                return out;
+                return (f64::INFINITY, c);
             }
         }
-        out.f = self.measurement_chi2(th);
-        if derivatives {
-            let w = self.measurement_weight();
-            for i in 0..self.0.n_params {
-                for j in 0..self.0.n_params {
-                    out.h[i][j] = 2.0 * w[i][j];
-                }
+        let mut f = self.measurement_chi2(th);
+        let sums = self.composite_sums(th);
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
+            let sum = &sums[term.composite];
+            let m2 = sum.dot(sum);
+            let mt = self.target_mass(term, th);
+            let ct = (m2 - mt * mt) / (2.0 * mt);
+            c[t] = ct;
+            f += term.linear * ct + term.quadratic * ct * ct;
+        }
+        (if f.is_finite() { f } else { f64::INFINITY }, c)
+    }
+
+    /// Cost and scaled residuals c̃_t = c_t / width_t at internal
+    /// parameters `x` (no derivatives; cost +∞ outside the domain).
+    pub(crate) fn value_and_residuals(&self, x: &Params) -> (f64, [f64; MAX_TERMS]) {
+        let (f, mut c) = self.value_physical(&self.to_physical(x));
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
+            c[t] /= term.width;
+        }
+        (f, c)
+    }
+
+    /// Cost, residuals and derivatives in θ into `out` (θ-space
+    /// [`Expansion`]: `a` holds ∇_θ c_t of the raw residuals). With
+    /// `multipliers` λ, `h` is the Hessian of the Lagrangian
+    /// cost + Σ_t λ_t c_t / width_t and `gl` the gradient of the multiplier
+    /// part (the cost's own gradient stays in `g`). Only the leading n
+    /// (parameters) and m (terms) entries are written.
+    pub(crate) fn eval_physical_into(
+        &self,
+        th: &[f64; MAX_PARAMS],
+        multipliers: Option<&[f64; MAX_TERMS]>,
+        out: &mut Expansion,
+    ) {
+        let d = &*self.0;
+        let n = d.n_params;
+        out.f = f64::INFINITY;
+        for k in 0..d.n_common {
+            if th[self.common_index(k)] <= 0.0 {
+                return;
             }
-            for i in 0..self.0.n_objects {
-                out.g[i] = 2.0 * (th[i] - 1.0) * w[i][i];
-            }
-            if let (Some(nu), Some(k)) = (&self.0.neutrino, self.neutrino_index()) {
+        }
+        let h = &mut out.h[..n * n];
+        h.fill(0.0);
+        out.g[..n].fill(0.0);
+        out.gl[..n].fill(0.0);
+        let mut f = self.measurement_chi2(th);
+        for i in 0..d.n_objects {
+            let w = 1.0 / (d.rel_sigma[i] * d.rel_sigma[i]);
+            h[i * n + i] = 2.0 * w;
+            out.g[i] = 2.0 * (th[i] - 1.0) * w;
+        }
+        let nu_p4 = match (&d.neutrino, self.neutrino_index()) {
+            (Some(nu), Some(k)) => {
                 let dx = th[k] - nu.met[0];
                 let dy = th[k + 1] - nu.met[1];
                 out.g[k] = 2.0 * (nu.vinv[0] * dx + nu.vinv[1] * dy);
                 out.g[k + 1] = 2.0 * (nu.vinv[1] * dx + nu.vinv[2] * dy);
+                h[k * n + k] = 2.0 * nu.vinv[0];
+                h[k * n + k + 1] = 2.0 * nu.vinv[1];
+                h[(k + 1) * n + k] = 2.0 * nu.vinv[1];
+                h[(k + 1) * n + k + 1] = 2.0 * nu.vinv[2];
+                Some(neutrino_p4(th[k], th[k + 1], th[k + 2]))
             }
-        }
+            _ => None,
+        };
         let sums = self.composite_sums(th);
-        let nu_p4 = self
-            .neutrino_index()
-            .map(|k| neutrino_p4(th[k], th[k + 1], th[k + 2]));
-        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
-            let sum = sums[term.composite];
-            let m2 = sum.dot(&sum);
+        for (t, term) in d.terms[..d.n_terms].iter().enumerate() {
+            let sum = &sums[term.composite];
+            let m2 = sum.dot(sum);
             let mt = self.target_mass(term, th);
             let c = (m2 - mt * mt) / (2.0 * mt);
             out.c[t] = c;
-            out.f += term.linear * c + term.quadratic * c * c;
-            if !derivatives {
-                continue;
+            f += term.linear * c + term.quadratic * c * c;
+            // ∇c: (∇m²)/(2M), and −m²/(2M²) − ½ for a free common mass.
+            let dc = &mut out.a[t];
+            dc[..n].fill(0.0);
+            let comp = &d.composites[term.composite];
+            let inv_mt = 1.0 / mt;
+            let mut mask = comp.object_mask();
+            while mask != 0 {
+                let i = mask.trailing_zeros() as usize;
+                mask &= mask - 1;
+                dc[i] = sum.dot(&d.measured[i]) * inv_mt;
             }
-            // d(a c + b c²)/dc and its second derivative; the multiplier
-            // adds λ/width to the first.
-            let w1 = term.linear + 2.0 * term.quadratic * c;
-            let wl = multipliers.map_or(0.0, |l| l[t] / term.width);
-            let w2 = 2.0 * term.quadratic;
-            let dm2 = self.mass2_gradient(term.composite, &sum, nu_p4);
-            let dc = &mut out.dc[t];
-            for j in 0..self.0.n_params {
-                dc[j] = dm2[j] / (2.0 * mt);
-            }
+            let nu_k = match (nu_p4, self.neutrino_index()) {
+                (Some(nu), Some(k)) if comp.contains_neutrino() => {
+                    let ratio = sum.e() / nu.e();
+                    let (p, s) = (nu.p3(), sum.p3());
+                    for a in 0..3 {
+                        dc[k + a] = (ratio * p[a] - s[a]) * inv_mt;
+                    }
+                    Some((nu, k))
+                }
+                _ => None,
+            };
             let common = match term.target {
                 Target::Common(k) => Some(self.common_index(k)),
                 Target::Fixed(_) => None,
@@ -726,12 +734,20 @@ impl KinematicChi2 {
             if let Some(km) = common {
                 dc[km] = -m2 / (2.0 * mt * mt) - 0.5;
             }
-            for i in 0..self.0.n_params {
+            // d(a c + b c²)/dc and its second derivative; the multiplier
+            // adds λ/width to the first.
+            let w1 = term.linear + 2.0 * term.quadratic * c;
+            let wl = multipliers.map_or(0.0, |l| l[t] / term.width);
+            let w2 = 2.0 * term.quadratic;
+            let support = &d.support[t][..d.n_support[t] as usize];
+            for &i in support {
+                let i = i as usize;
                 out.g[i] += w1 * dc[i];
                 out.gl[i] += wl * dc[i];
-                if w2 != 0.0 && dc[i] != 0.0 {
-                    for j in 0..self.0.n_params {
-                        out.h[i][j] += w2 * dc[i] * dc[j];
+                if w2 != 0.0 {
+                    for &j in support {
+                        let j = j as usize;
+                        h[i * n + j] += w2 * dc[i] * dc[j];
                     }
                 }
             }
@@ -739,62 +755,32 @@ impl KinematicChi2 {
             if wc == 0.0 {
                 continue;
             }
-            // wc · ∇²c: the m² part scaled by 1/(2M) ...
-            self.add_mass2_hessian(term.composite, &sum, nu_p4, wc / (2.0 * mt), &mut out.h);
-            // ... and, for a free common mass, the M rows.
-            if let Some(km) = common {
-                for j in 0..self.0.n_params {
-                    if j != km && dm2[j] != 0.0 {
-                        let v = -wc * dm2[j] / (2.0 * mt * mt);
-                        out.h[j][km] += v;
-                        out.h[km][j] += v;
-                    }
+            // wc · ∇²c = wc/(2M) ∇²m² + the free common mass's rows.
+            let k2 = wc * inv_mt; // 2 · wc/(2M)
+            let mut mi = comp.object_mask();
+            while mi != 0 {
+                let i = mi.trailing_zeros() as usize;
+                mi &= mi - 1;
+                let mut mj = comp.object_mask();
+                while mj != 0 {
+                    let j = mj.trailing_zeros() as usize;
+                    mj &= mj - 1;
+                    h[i * n + j] += k2 * d.gram[i][j];
                 }
-                out.h[km][km] += wc * m2 / (mt * mt * mt);
             }
-        }
-        if !out.f.is_finite() {
-            out.f = f64::INFINITY;
-        }
-        out
-    }
-
-    /// Adds `k · ∇²m²` of a composite to `h`.
-    fn add_mass2_hessian(
-        &self,
-        composite: usize,
-        sum: &FourMomentum,
-        nu: Option<FourMomentum>,
-        k: f64,
-        h: &mut [[f64; MAX_PARAMS]; MAX_PARAMS],
-    ) {
-        let c = &self.0.composites[composite];
-        let mask = c.object_mask();
-        let mut mi = mask;
-        while mi != 0 {
-            let i = mi.trailing_zeros() as usize;
-            mi &= mi - 1;
-            let mut mj = mask;
-            while mj != 0 {
-                let j = mj.trailing_zeros() as usize;
-                mj &= mj - 1;
-                h[i][j] += k * 2.0 * self.0.measured[i].dot(&self.0.measured[j]);
-            }
-        }
-        if c.contains_neutrino() {
-            if let (Some(nu), Some(kn)) = (nu, self.neutrino_index()) {
+            if let Some((nu, kn)) = nu_k {
                 let e = nu.e();
                 let p = nu.p3();
-                let mut mi = mask;
+                let mut mi = comp.object_mask();
                 while mi != 0 {
                     let i = mi.trailing_zeros() as usize;
                     mi &= mi - 1;
-                    let q = self.0.measured[i];
+                    let q = &d.measured[i];
                     let qp = q.p3();
                     for a in 0..3 {
-                        let v = k * 2.0 * (q.e() * p[a] / e - qp[a]);
-                        h[i][kn + a] += v;
-                        h[kn + a][i] += v;
+                        let v = k2 * (q.e() * p[a] / e - qp[a]);
+                        h[i * n + kn + a] += v;
+                        h[(kn + a) * n + i] += v;
                     }
                 }
                 let ec = sum.e();
@@ -803,9 +789,55 @@ impl KinematicChi2 {
                         let delta = if a == b { 1.0 } else { 0.0 };
                         let pab = p[a] * p[b];
                         let v = pab / (e * e) + ec * (delta / e - pab / (e * e * e)) - delta;
-                        h[kn + a][kn + b] += k * 2.0 * v;
+                        h[(kn + a) * n + kn + b] += k2 * v;
                     }
                 }
+            }
+            if let Some(km) = common {
+                for &j in support {
+                    let j = j as usize;
+                    if j != km {
+                        // −wc ∂m²/∂θ_j / (2M²) with ∂m²/∂θ_j = 2M dc_j.
+                        let v = -wc * dc[j] * inv_mt;
+                        h[j * n + km] += v;
+                        h[km * n + j] += v;
+                    }
+                }
+                h[km * n + km] += wc * m2 * inv_mt * inv_mt * inv_mt;
+            }
+        }
+        out.f = if f.is_finite() { f } else { f64::INFINITY };
+    }
+
+    /// The [`Expansion`] at internal parameters `x` with multipliers λ of
+    /// the scaled residuals, into `out` (cost +∞ and nothing else
+    /// meaningful outside the domain).
+    pub(crate) fn expand_into(
+        &self,
+        x: &Params,
+        multipliers: &[f64; MAX_TERMS],
+        out: &mut Expansion,
+    ) {
+        let th = self.to_physical(x);
+        self.eval_physical_into(&th, Some(multipliers), out);
+        if !out.f.is_finite() {
+            return;
+        }
+        let n = self.0.n_params;
+        let (d1, d2) = self.jacobian(&th);
+        for i in 0..n {
+            let row = &mut out.h[i * n..i * n + n];
+            for j in 0..n {
+                row[j] *= d1[i] * d1[j];
+            }
+            row[i] += d2[i] * (out.g[i] + out.gl[i]);
+            out.g[i] *= d1[i];
+        }
+        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
+            let inv_w = 1.0 / term.width;
+            out.c[t] *= inv_w;
+            for j in 0..n {
+                out.a[t][j] *= d1[j] * inv_w;
             }
         }
     }
@@ -837,43 +869,42 @@ impl KinematicChi2 {
     /// Cost and gradient in internal parameters x; the exact Hessian's
     /// leading n×n block goes row-major into `block`.
     fn eval_exact(&self, x: &Params, block: &mut [f64; MAX_PARAMS * MAX_PARAMS]) -> (f64, Params) {
-        let th = self.to_physical(x);
-        let ev = self.eval_physical(&th, true);
-        let mut g = Params::zeros();
+        let mut e = Expansion::empty();
+        self.expand_into(x, &[0.0; MAX_TERMS], &mut e);
         let n = self.0.n_params;
-        if !ev.f.is_finite() {
+        let mut g = Params::zeros();
+        if !e.f.is_finite() {
             for i in 0..n {
                 block[i * n + i] = 1.0;
             }
             return (f64::INFINITY, g);
         }
-        let (d1, d2) = self.jacobian(&th);
-        for i in 0..n {
-            g[i] = d1[i] * ev.g[i];
-            for j in 0..n {
-                block[i * n + j] = d1[i] * d1[j] * ev.h[i][j];
-            }
-            block[i * n + i] += d2[i] * ev.g[i];
-        }
-        (ev.f, g)
+        block[..n * n].copy_from_slice(&e.h[..n * n]);
+        g.as_mut_slice()[..n].copy_from_slice(&e.g[..n]);
+        (e.f, g)
     }
 }
 
-/// What one Newton–Lagrange iteration needs at a point x (internal
-/// parameters): the cost with its gradient, the Hessian of the Lagrangian
-/// and the scaled constraint residuals c̃_t = c_t / width_t with their
-/// Jacobian. Arrays are row-major over the leading n (parameters) and m
-/// (terms) entries.
+/// Value and derivatives at one point, in physical parameters θ
+/// ([`KinematicChi2::eval_physical_into`]) or internal parameters x
+/// ([`KinematicChi2::expand_into`]): the cost with its gradient, the
+/// Hessian of the Lagrangian and the constraint residuals with their
+/// Jacobian (in x: scaled, c̃_t = c_t / width_t). Arrays are row-major over
+/// the leading n (parameters) and m (terms) entries. Reused across
+/// iterations, so it is written in place rather than returned.
+#[derive(Clone)]
 pub(crate) struct Expansion {
     /// Cost (+∞ outside the domain: a common mass ≤ 0).
     pub f: f64,
-    /// ∇_x cost.
+    /// Gradient of the cost.
     pub g: [f64; MAX_PARAMS],
-    /// ∇²_x (cost + Σ_t λ_t c̃_t), row-major n×n.
+    /// Gradient of the multiplier part Σ λ_t c_t / width_t.
+    pub gl: [f64; MAX_PARAMS],
+    /// Hessian of cost + Σ_t λ_t c_t / width_t, row-major n×n.
     pub h: [f64; MAX_PARAMS * MAX_PARAMS],
-    /// c̃_t.
+    /// Residuals.
     pub c: [f64; MAX_TERMS],
-    /// ∂c̃_t/∂x_j, row t.
+    /// Residual gradients, row t.
     pub a: [[f64; MAX_PARAMS]; MAX_TERMS],
 }
 
@@ -883,53 +914,11 @@ impl Expansion {
         Expansion {
             f: 0.0,
             g: [0.0; MAX_PARAMS],
+            gl: [0.0; MAX_PARAMS],
             h: [0.0; MAX_PARAMS * MAX_PARAMS],
             c: [0.0; MAX_TERMS],
             a: [[0.0; MAX_PARAMS]; MAX_TERMS],
         }
-    }
-}
-
-impl KinematicChi2 {
-    /// The [`Expansion`] at internal parameters `x` with multipliers λ of
-    /// the scaled residuals.
-    pub(crate) fn expand(&self, x: &Params, multipliers: &[f64; MAX_TERMS]) -> Expansion {
-        let th = self.to_physical(x);
-        let ev = self.eval_physical_with(&th, true, Some(multipliers));
-        let n = self.0.n_params;
-        let mut out = Expansion::empty();
-        out.f = ev.f;
-        if !ev.f.is_finite() {
-            return out;
-        }
-        let (d1, d2) = self.jacobian(&th);
-        for i in 0..n {
-            out.g[i] = d1[i] * ev.g[i];
-            for j in 0..n {
-                out.h[i * n + j] = d1[i] * d1[j] * ev.h[i][j];
-            }
-            out.h[i * n + i] += d2[i] * (ev.g[i] + ev.gl[i]);
-        }
-        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
-            let inv_w = 1.0 / term.width;
-            out.c[t] = ev.c[t] * inv_w;
-            for j in 0..n {
-                out.a[t][j] = ev.dc[t][j] * d1[j] * inv_w;
-            }
-        }
-        out
-    }
-
-    /// Cost and scaled residuals c̃_t = c_t / width_t at internal
-    /// parameters `x` (no derivatives; cost +∞ outside the domain).
-    pub(crate) fn value_and_residuals(&self, x: &Params) -> (f64, [f64; MAX_TERMS]) {
-        let th = self.to_physical(x);
-        let ev = self.eval_physical_with(&th, false, None);
-        let mut c = ev.c;
-        for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
-            c[t] /= term.width;
-        }
-        (ev.f, c)
     }
 }
 
@@ -938,7 +927,7 @@ impl CostFunction for KinematicChi2 {
     type Output = f64;
 
     fn cost(&self, x: &Params) -> Result<f64, Error> {
-        Ok(self.eval_physical(&self.to_physical(x), false).f)
+        Ok(self.value_physical(&self.to_physical(x)).0)
     }
 }
 
@@ -1053,7 +1042,8 @@ mod tests {
                 let lambda = [
                     0.7, -1.3, 0.4, 2.1, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0,
                 ];
-                let e = p.expand(&x, &lambda);
+                let mut e = Expansion::empty();
+                p.expand_into(&x, &lambda, &mut e);
                 let lagrangian = |x: &Params| {
                     let (f, c) = p.value_and_residuals(x);
                     f + (0..m).map(|t| lambda[t] * c[t]).sum::<f64>()
