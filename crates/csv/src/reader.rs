@@ -946,6 +946,24 @@ fn parse_row(ctx: &RowCtx<'_>, options: &ReadOptions, block: &mut Block) -> Resu
             format!("{kind_text} row needs a value in 'mass' or 'energy'"),
         ));
     };
+    // Each value is finite, but together they may overflow f64 (a mass of
+    // 1e200 squares to +inf; pt = 1e300 at η = 20 gives pz = +inf): such a
+    // row must not become a good event carrying an infinite momentum.
+    if ![p4.px(), p4.py(), p4.pz(), p4.e()]
+        .iter()
+        .all(|x| x.is_finite())
+    {
+        return Err(ctx.row_err(
+            BadReason::NotFinite,
+            format!(
+                "{kind_text} four-momentum overflows (px, py, pz, E) = ({}, {}, {}, {}): values too large",
+                format_value(p4.px()),
+                format_value(p4.py()),
+                format_value(p4.pz()),
+                format_value(p4.e())
+            ),
+        ));
+    }
     let truth = {
         let text = ctx.text(cols.truth)?;
         if text.is_empty() {
