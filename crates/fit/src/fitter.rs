@@ -312,9 +312,6 @@ impl<S: Solver<KinematicChi2, FitState>> Solver<KinematicChi2, FitState> for Gra
     }
 }
 
-/// Most Newton(–Lagrange) iterations before falling back to the
-/// trust-region method (converged fits take far fewer).
-const NEWTON_MAX_ITERATIONS: u32 = 40;
 /// Initial trust-region radius in σ units.
 const INITIAL_RADIUS: f64 = 3.0;
 /// Largest trust-region radius in σ units: small enough that argmin's
@@ -382,33 +379,52 @@ impl KinematicFitter {
 
     /// Fits one assignment. Never panics; failures are a [`FitStatus`].
     pub fn fit(&mut self, input: &FitInput) -> FitResult {
-        let mut problem = match KinematicChi2::new(input, &self.model) {
+        let problem = match KinematicChi2::new(input, &self.model) {
             Ok(p) => p,
             Err(e) => return FitResult::failed(input, FitStatus::InvalidInput(e), 0),
         };
         let hard = self.config.mode == ConstraintMode::Hard;
-        if hard {
-            // The terms become equality constraints: no cost weight.
-            for t in 0..problem.n_terms() {
-                problem.set_term_weights(t, 0.0, 0.0);
+        let max = self.config.max_iterations;
+        let zeros = [0.0; MAX_TERMS];
+        // 1. Newton(–Lagrange) from the measured point.
+        let (mut problem, mut x, mut iterations, mut progress) =
+            self.newton(input, problem, hard, Params::zeros(), &zeros, max);
+        if hard && progress != Progress::Converged && iterations < max {
+            // 2. Rare: the soft fit from the measured point, then
+            //    Newton–Lagrange from its minimum with the multipliers it
+            //    implies (∇f + Σ 2c̃_t ∇c̃_t = 0 there, so λ = 2c̃).
+            let (p, xs, it, prog) = self.newton(
+                input,
+                problem,
+                false,
+                Params::zeros(),
+                &zeros,
+                max - iterations,
+            );
+            problem = p;
+            iterations += it;
+            if prog == Progress::Converged && iterations < max {
+                let (_, c) = problem.value_and_residuals(&xs);
+                let lambda = c.map(|v| 2.0 * v);
+                let (p, xh, it, prog) =
+                    self.newton(input, problem, true, xs, &lambda, max - iterations);
+                problem = p;
+                x = xh;
+                iterations += it;
+                progress = prog;
             }
         }
-        let budget = self.config.max_iterations.min(NEWTON_MAX_ITERATIONS);
-        let (p, x, iterations, progress) = self.newton(problem, hard, budget);
-        problem = match p {
-            Some(p) => p,
-            None => match KinematicChi2::new(input, &self.model) {
-                Ok(p) => p,
-                Err(e) => return FitResult::failed(input, FitStatus::InvalidInput(e), iterations),
-            },
-        };
-        let (x, status, iterations) = if progress == Progress::Converged {
-            (x, FitStatus::Converged, iterations)
+        let status = if progress == Progress::Converged {
+            FitStatus::Converged
         } else {
-            // Rare: fall back to the trust-region method from the start.
+            // Rarer still: the trust-region method from the start.
             problem.set_soft_weights();
             match self.fit_trust_region(&mut problem, iterations) {
-                Ok(r) => r,
+                Ok((xt, status, it)) => {
+                    x = xt;
+                    iterations = it;
+                    status
+                }
                 Err(iterations) => {
                     return FitResult::failed(input, FitStatus::NumericalFailure, iterations)
                 }
@@ -422,17 +438,31 @@ impl KinematicFitter {
         }
     }
 
-    /// One argmin run of the Newton(–Lagrange) solver from x = 0. The
-    /// problem comes back unless argmin reported an error (then `None`).
+    /// One argmin run of the Newton(–Lagrange) solver from `x0` with
+    /// multipliers `lambda0` (hard) or on the soft χ² (not `hard`); sets
+    /// the problem's term weights to match. If argmin reports an error the
+    /// problem is rebuilt from `input` and the run counts as failed.
     fn newton(
         &mut self,
-        problem: KinematicChi2,
+        input: &FitInput,
+        mut problem: KinematicChi2,
         hard: bool,
+        x0: Params,
+        lambda0: &[f64; MAX_TERMS],
         max_iterations: u32,
-    ) -> (Option<KinematicChi2>, Params, u32, Progress) {
+    ) -> (KinematicChi2, Params, u32, Progress) {
+        if hard {
+            // The terms become equality constraints: no cost weight.
+            for t in 0..problem.n_terms() {
+                problem.set_term_weights(t, 0.0, 0.0);
+            }
+        } else {
+            problem.set_soft_weights();
+        }
         let solver = NewtonLagrange::new(
             &mut self.workspace,
-            Params::zeros(),
+            x0,
+            *lambda0,
             hard,
             self.config.decrement_tolerance,
             self.config.hard_tolerance,
@@ -441,14 +471,24 @@ impl KinematicFitter {
             .configure(|s| s.max_iters(u64::from(max_iterations)))
             .timer(false)
             .run();
-        match run {
-            Err(_) => (None, Params::zeros(), 0, Progress::Failed),
-            Ok(mut res) => {
-                let iterations = res.state.get_iter() as u32;
-                let problem = res.problem.take_problem();
-                (problem, *res.solver.x(), iterations, res.solver.progress())
-            }
-        }
+        let (problem, x, iterations, progress) = match run {
+            Err(_) => (None, x0, 0, Progress::Failed),
+            Ok(mut res) => (
+                res.problem.take_problem(),
+                *res.solver.x(),
+                res.state.get_iter() as u32,
+                res.solver.progress(),
+            ),
+        };
+        let problem = match problem {
+            Some(p) => p,
+            // Validated by the first build, so this succeeds.
+            None => match KinematicChi2::new(input, &self.model) {
+                Ok(p) => p,
+                Err(_) => unreachable!("input validated before"),
+            },
+        };
+        (problem, x, iterations, progress)
     }
 
     /// The trust-region fit (soft) or augmented-Lagrangian loop around it

@@ -105,7 +105,8 @@ pub(crate) struct NewtonLagrange<'w> {
 }
 
 impl<'w> NewtonLagrange<'w> {
-    /// A solver starting at `x0`. `constrained`: the problem's terms are
+    /// A solver starting at `x0` (multipliers `lambda0`, used only if
+    /// constrained). `constrained`: the problem's terms are
     /// equality constraints (their cost weights must be zero), met to
     /// `violation_tolerance` GeV in |m − M|. `tolerance`: convergence when
     /// the Newton decrement (soft) or the squared step length in σ units
@@ -113,6 +114,7 @@ impl<'w> NewtonLagrange<'w> {
     pub(crate) fn new(
         ws: &'w mut Workspace,
         x0: Params,
+        lambda0: [f64; MAX_TERMS],
         constrained: bool,
         tolerance: f64,
         violation_tolerance: f64,
@@ -123,7 +125,7 @@ impl<'w> NewtonLagrange<'w> {
             tolerance,
             violation_tolerance,
             x: x0,
-            lambda: [0.0; MAX_TERMS],
+            lambda: lambda0,
             n_filter: 0,
             progress: Progress::Running,
         }
