@@ -348,6 +348,20 @@ fn table() -> Vec<(&'static str, [Expect; 2])> {
             ]),
         ),
         (
+            // Finite values whose four-momentum overflows f64 (found by the
+            // pipeline fuzz target; fuzz/regressions/pipeline/overflow-mass).
+            "overflow.csv",
+            one_bad(
+                "overflow.csv",
+                vec![
+                    ok("1"),
+                    bad("2", &d("overflow.csv:11: jet four-momentum overflows (px, py, pz, E) = (-51.66459732378563, 141.88646652648407, -35.03701376067386, inf): values too large")),
+                    bad("3", &d("overflow.csv:15: jet four-momentum overflows (px, py, pz, E) = (9.393727128473789e299, 3.4289780745545135e299, inf, inf): values too large")),
+                    ok("4"),
+                ],
+            ),
+        ),
+        (
             "negative_pt.csv",
             one_bad("negative_pt.csv", vec![ok("1"), bad("2", &d("negative_pt.csv:11: column 'pt': '-151' is negative (expected pt ≥ 0)")), ok("3")]),
         ),
