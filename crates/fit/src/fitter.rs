@@ -623,7 +623,7 @@ impl KinematicFitter {
     }
 
     fn pack(
-        &self,
+        &mut self,
         input: &FitInput,
         problem: &KinematicChi2,
         x: &Params,
@@ -662,7 +662,8 @@ impl KinematicFitter {
             common,
         };
         if self.config.uncertainties && status == FitStatus::Converged {
-            match covariance_diagonal(problem, &th, self.config.mode) {
+            let scratch = self.workspace.scratch();
+            match covariance_diagonal(problem, &th, self.config.mode, scratch) {
                 Some(var) => {
                     let sd = |i: usize| var[i].max(0.0).sqrt();
                     for i in 0..problem.n_objects() {
@@ -693,15 +694,16 @@ impl KinematicFitter {
 /// computed as G⁻¹ − G⁻¹Aᵀ(AG⁻¹Aᵀ)⁻¹AG⁻¹ with G = W + AᵀRA, R = diag(1/width²),
 /// which has the same block and is invertible when the constraints fix
 /// every unmeasured parameter. With G = LLᵀ, V = L⁻¹Aᵀ, S = VᵀV = KKᵀ and
-/// y = L⁻¹e_i: C_ii = |y|² − |K⁻¹Vᵀy|². Stack arrays only.
+/// y = L⁻¹e_i: C_ii = |y|² − |K⁻¹Vᵀy|². Stack arrays and the scratch
+/// expansion `e` only.
 fn covariance_diagonal(
     problem: &KinematicChi2,
     th: &[f64; MAX_PARAMS],
     mode: ConstraintMode,
+    e: &mut Expansion,
 ) -> Option<[f64; MAX_PARAMS]> {
     let n = problem.n_params();
-    let mut e = Expansion::empty();
-    problem.eval_physical_into(th, None, &mut e);
+    problem.eval_physical_into(th, None, e);
     if !e.f.is_finite() {
         return None;
     }

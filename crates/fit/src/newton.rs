@@ -45,7 +45,7 @@ use crate::problem::{
 };
 
 /// argmin state of the Newton–Lagrange solver: parameters and cost only.
-pub(crate) type NewtonState = IterState<Params, (), (), (), (), f64>;
+pub(crate) type NewtonState = IterState<(), (), (), (), (), f64>;
 
 /// Where the solver stands.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -68,19 +68,31 @@ const MAX_FILTER: usize = 48;
 /// Most step halvings per line search.
 const MAX_BACKTRACKS: usize = 30;
 /// Weights ρ of the 2ρÃᵀÃ term tried in turn for a positive-definite G.
-const RHO_STEPS: [f64; 3] = [1.0, 1e2, 1e4];
+const RHO_STEPS: [f64; 2] = [1.0, 1e2];
 
 /// Work arrays of the solver, owned by the fitter and reused for every fit.
 #[derive(Clone)]
 pub(crate) struct Workspace {
-    current: Expansion,
+    /// The expansion at the current point and a second one for the trial
+    /// point (swapped on acceptance, so an accepted full step costs no
+    /// second evaluation).
+    buffers: [Expansion; 2],
+    cur: usize,
     filter: [(f64, f64); MAX_FILTER],
+}
+
+impl Workspace {
+    /// A buffer not holding the current point (free between fits).
+    pub(crate) fn scratch(&mut self) -> &mut Expansion {
+        &mut self.buffers[1 - self.cur]
+    }
 }
 
 impl Default for Workspace {
     fn default() -> Self {
         Workspace {
-            current: Expansion::empty(),
+            buffers: [Expansion::empty(), Expansion::empty()],
+            cur: 0,
             filter: [(0.0, 0.0); MAX_FILTER],
         }
     }
@@ -161,7 +173,7 @@ impl<'w> NewtonLagrange<'w> {
     /// finite.
     fn accept(&mut self, problem: &KinematicChi2, x: Params) -> bool {
         self.x = x;
-        let e = &mut self.ws.current;
+        let e = &mut self.ws.buffers[self.ws.cur];
         problem.expand_into(&self.x, &self.lambda, e);
         let n = problem.n_params();
         e.f.is_finite() && e.g[..n].iter().all(|v| v.is_finite())
@@ -184,8 +196,8 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
         if !self.accept(p, self.x) {
             self.progress = Progress::Failed;
         }
-        let f = self.ws.current.f;
-        Ok((state.param(self.x).cost(f), None))
+        let f = self.ws.buffers[self.ws.cur].f;
+        Ok((state.cost(f), None))
     }
 
     fn next_iter(
@@ -199,7 +211,8 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
         };
         let n = p.n_params();
         let m = if self.constrained { p.n_terms() } else { 0 };
-        let e = &self.ws.current;
+        let cur = self.ws.cur;
+        let e = &self.ws.buffers[cur];
 
         // G = H + 2ρÃᵀÃ = LLᵀ, positive definite if possible.
         let mut g_mat = [0.0; MAX_PARAMS * MAX_PARAMS];
@@ -217,7 +230,8 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
         }
         if !factored {
             // Modified Newton: the smallest tried µ that makes G + µI
-            // positive definite.
+            // positive definite (a small µ keeps the step close to
+            // Newton's; larger first guesses measurably slow convergence).
             let scale = (0..n).map(|i| g_mat[i * n + i].abs()).fold(1e-12, f64::max);
             let mut shift = 1e-8 * scale;
             for _ in 0..60 {
@@ -301,13 +315,13 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
             if ok {
                 self.x = xt;
                 self.progress = Progress::Converged;
-                return Ok((state.param(self.x).cost(ft), None));
+                return Ok((state.cost(ft), None));
             }
             if m == 0 {
                 // Already at the minimum to rounding.
                 self.progress = Progress::Converged;
                 let f = e.f;
-                return Ok((state.param(self.x).cost(f), None));
+                return Ok((state.cost(f), None));
             }
         }
 
@@ -320,9 +334,18 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
         }
         let mut alpha = 1.0;
         let mut accepted: Option<(Params, f64)> = None;
+        let mut full_step_expanded = false;
         for k in 0..MAX_BACKTRACKS {
             let xt = self.x + delta * alpha;
-            let (ft, ct) = p.value_and_residuals(&xt);
+            let (ft, ct) = if k == 0 {
+                // The full step is usually accepted: expand there at once
+                // (with the multipliers it brings) into the spare buffer.
+                let trial = &mut self.ws.buffers[1 - cur];
+                p.expand_into(&xt, &lambda_new, trial);
+                (trial.f, trial.c)
+            } else {
+                p.value_and_residuals(&xt)
+            };
             let ht: f64 = ct[..m].iter().map(|v| v.abs()).sum();
             let ok = if m == 0 {
                 ft <= f0 + ARMIJO * alpha * gd
@@ -331,6 +354,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
             };
             if ok {
                 accepted = Some((xt, alpha));
+                full_step_expanded = k == 0;
                 break;
             }
             if k == 0 && m > 0 && ft.is_finite() {
@@ -371,11 +395,20 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
         for t in 0..m {
             self.lambda[t] += alpha * (lambda_new[t] - self.lambda[t]);
         }
-        if !self.accept(p, x_new) {
+        if full_step_expanded {
+            self.x = x_new;
+            self.ws.cur = 1 - cur;
+            if !self.ws.buffers[self.ws.cur].g[..n]
+                .iter()
+                .all(|v| v.is_finite())
+            {
+                return self.fail(state);
+            }
+        } else if !self.accept(p, x_new) {
             return self.fail(state);
         }
-        let f = self.ws.current.f;
-        Ok((state.param(self.x).cost(f), None))
+        let f = self.ws.buffers[self.ws.cur].f;
+        Ok((state.cost(f), None))
     }
 
     fn terminate(&mut self, _state: &NewtonState) -> TerminationStatus {

@@ -97,21 +97,19 @@ impl HessianMatrix {
 /// (or not finite).
 pub(crate) fn cholesky(h: &[f64], n: usize, shift: f64, l: &mut [f64]) -> bool {
     for j in 0..n {
-        let mut d = h[j * n + j] + shift;
-        for k in 0..j {
-            d -= l[j * n + k] * l[j * n + k];
-        }
+        let (upper, rest) = l.split_at_mut((j + 1) * n);
+        let row_j = &mut upper[j * n..];
+        let d = h[j * n + j] + shift - row_j[..j].iter().map(|v| v * v).sum::<f64>();
         if !(d > 0.0 && d.is_finite()) {
             return false;
         }
         let inv = 1.0 / d.sqrt();
-        l[j * n + j] = inv; // the diagonal holds 1/L_jj: solves multiply
-        for i in j + 1..n {
-            let mut v = h[i * n + j];
-            for k in 0..j {
-                v -= l[i * n + k] * l[j * n + k];
-            }
-            l[i * n + j] = v * inv;
+        row_j[j] = inv; // the diagonal holds 1/L_jj: solves multiply
+        let lj = &row_j[..j];
+        for (r, li) in rest.chunks_exact_mut(n).take(n - j - 1).enumerate() {
+            let i = j + 1 + r;
+            let v = h[i * n + j] - li[..j].iter().zip(lj).map(|(a, b)| a * b).sum::<f64>();
+            li[j] = v * inv;
         }
     }
     true

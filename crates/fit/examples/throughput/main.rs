@@ -5,7 +5,7 @@
 //! `/proc/thread-self/schedstat` (Linux) and falls back to wall time
 //! elsewhere (says so in the output).
 //!
-//! `cargo run --release -p quarry-fit --example throughput [events] [repeats]`
+//! `cargo run --release -p quarry-fit --example throughput [events] [repeats] [hard|soft]`
 
 mod events;
 
@@ -25,12 +25,16 @@ fn main() {
     let mut args = std::env::args().skip(1);
     let n_events: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(2000);
     let repeats: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(5);
+    let only = args.next();
     let model = ResolutionModel::default();
     let events = events::events(&model, n_events);
     for (name, mode) in [
         ("hard", ConstraintMode::Hard),
         ("soft", ConstraintMode::Soft),
     ] {
+        if only.as_deref().is_some_and(|o| o != name) {
+            continue;
+        }
         let mut fitter = KinematicFitter::new(
             model.clone(),
             FitConfig {
