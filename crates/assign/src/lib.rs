@@ -17,7 +17,14 @@
 //! candidates are scored first and visited best-first, so a good incumbent is
 //! found immediately and whole subtrees are cut. Pruning is strict (ties
 //! survive), so the result — including the deterministic tie-break — is that
-//! of exhaustive enumeration. All buffers are fixed-size arrays
+//! of exhaustive enumeration. When an equal-mass constraint splits the roles
+//! into two sides and one side has few fillings (the leptonic heavy quark of
+//! a bW pair: lepton × neutrino root × jet), that side is filled last and
+//! *joined*: its fillings are listed once per event, with their χ² terms
+//! computed by the search's own steps, sorted by mass, and below the other
+//! side the search walks this list outwards from the other side's mass,
+//! stopping where the equal-mass term alone exceeds the K-th best. All
+//! buffers are fixed-size arrays
 //! ([`MAX_ROLES`], [`MAX_JETS`], …) inside a reusable [`Searcher`]: nothing is
 //! allocated per assignment.
 //!

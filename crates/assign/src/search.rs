@@ -372,8 +372,10 @@ pub enum SearchStatus {
 ///
 /// `complete` counts complete assignments whose χ² was computed; `partial`
 /// counts partial assignments (an object placed in a role before the last)
-/// whose running χ² was computed. Without pruning, `complete` is the size of
-/// the whole assignment space.
+/// whose running χ² was computed, and the entries of the per-event lists a
+/// search may build to complete the small side of an equal-mass constraint
+/// (see the crate docs). Without pruning, `complete` is the size of the whole
+/// assignment space.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct Evaluated {
     /// Complete assignments scored.
@@ -426,6 +428,9 @@ struct Step {
     comps: (usize, usize),
     /// Constraints completed by this step: a range of [`Plan::con_ops`].
     cons: (usize, usize),
+    /// The join that completes the assignment below this step (index into
+    /// [`Plan::joins`]).
+    join: Option<usize>,
 }
 
 /// Slots of the search's four-vector array: one per role, then one per
@@ -513,17 +518,20 @@ impl ConOp {
     /// The χ² term given the composite masses.
     #[inline(always)]
     fn term(&self, m: &[f64; MAX_COMPOSITES]) -> f64 {
-        let ma = m[self.a];
+        self.term_of(m[self.a % MAX_COMPOSITES], m[self.b % MAX_COMPOSITES])
+    }
+
+    /// The χ² term for masses `ma` (composite `a`) and `mb` (composite `b`;
+    /// unused by mass constraints).
+    #[inline(always)]
+    fn term_of(&self, ma: f64, mb: f64) -> f64 {
         let (diff, sigma) = match self.shape {
             ConShape::Mass => (ma - self.target, self.width),
-            ConShape::EqualAbsolute => (ma - m[self.b], self.width),
-            ConShape::EqualRelative => {
-                let mb = m[self.b];
-                (
-                    ma - mb,
-                    (self.width * 0.5 * (ma.abs() + mb.abs())).max(crate::MIN_RELATIVE_SIGMA),
-                )
-            }
+            ConShape::EqualAbsolute => (ma - mb, self.width),
+            ConShape::EqualRelative => (
+                ma - mb,
+                (self.width * 0.5 * (ma.abs() + mb.abs())).max(crate::MIN_RELATIVE_SIGMA),
+            ),
         };
         if diff == 0.0 {
             return 0.0;
@@ -533,12 +541,83 @@ impl ConOp {
     }
 }
 
+/// A *join* for an equal-mass constraint whose one side (the *closed*
+/// composite) completes at step `depth` while every later step fills the
+/// other (*open*) side.
+///
+/// The subtree below `depth` then depends on the rest of the assignment only
+/// through the closed mass and the objects already used. So every filling of
+/// the open roles is listed once per event and per choice of the open side's
+/// roles filled earlier (its *key*), by replaying the search's own steps
+/// (same sums, same terms, bit for bit), and sorted by the open composite's
+/// mass. Below `depth` the search then walks this list outwards from the
+/// closed mass instead of descending: on each side the equal-mass term does
+/// not decrease with the distance between the masses and every other term is
+/// ≥ 0, so a side ends once `running χ² + equal-mass term` exceeds the K-th
+/// best. Fillings that use an object already taken are skipped; the others'
+/// χ² is the replayed sum, so the K best are those of the plain search.
+#[derive(Clone, Debug)]
+struct Join {
+    depth: usize,
+    /// The equal-mass constraint.
+    eq: ConOp,
+    closed: usize,
+    open: usize,
+    /// Roles filled at or before `depth` that the list depends on (its key).
+    fixed: Vec<usize>,
+    /// The steps after `depth` (all of them), in fill order.
+    open_steps: Vec<usize>,
+    /// Additions to the running χ² per filling, in the search's order: per
+    /// open step its b-tag term, then its constraints' terms.
+    n_incr: usize,
+    /// Which addition is the equal-mass term (known only with the closed
+    /// mass).
+    eq_slot: usize,
+}
+
+/// Largest estimated number of fillings (see `Plan::new`) of a side that
+/// the plan fills last to join it (see [`Join`]): its list is built for
+/// every event, which pays off only while it is short.
+const MAX_JOIN_COST: f64 = 64.0;
+
+/// Most fillings in a join's list; past this the search descends as usual
+/// for that key (exact either way).
+const MAX_JOIN_ENTRIES: usize = 4096;
+
+/// One filling of a join's open roles.
+#[derive(Clone, Copy, Debug)]
+struct JoinEntry {
+    /// The open composite's mass.
+    mass: f64,
+    jets: u64,
+    leps: u64,
+    /// Objects of the open steps, in step order.
+    objs: [u8; MAX_ROLES],
+    /// Start of this filling's additions in [`JoinList::incr`].
+    at: usize,
+    /// Their sum, leaving out the equal-mass term.
+    rest: f64,
+}
+
+/// A join's list for the current event and key.
+#[derive(Clone, Debug, Default)]
+struct JoinList {
+    entries: Vec<JoinEntry>,
+    incr: Vec<f64>,
+    /// Search number and key the list was built for.
+    stamp: u64,
+    key: [u8; MAX_ROLES],
+    /// Too many fillings: no join for this key.
+    overflow: bool,
+}
+
 /// The order in which roles are filled and what completes at each step.
 #[derive(Clone, Debug)]
 struct Plan {
     steps: Vec<Step>,
     comp_ops: Vec<CompOp>,
     con_ops: Vec<ConOp>,
+    joins: Vec<Join>,
     /// Lepton roles the neutrino may come from (at most one).
     nu_lepton: Option<usize>,
 }
@@ -598,41 +677,115 @@ impl Plan {
             .collect();
         let mut order: Vec<usize> = Vec::with_capacity(n);
         let mut placed = 0u16;
+        // Within one constraint's roles: greedily the role that completes a
+        // composite with the fewest roles still missing (so that, e.g., one
+        // side of an equal-mass constraint completes early), then by kind
+        // (leptons, neutrino, large jets, jets) and index. A neutrino waits
+        // for its lepton, a jet for the large jet that may replace its
+        // composite.
+        let comps_all = h.composites();
         let push_sorted = |mask: u16, order: &mut Vec<usize>, placed: &mut u16| {
             let mut add: Vec<usize> = (0..n)
                 .filter(|&r| mask & (1 << r) != 0 && *placed & (1 << r) == 0)
                 .collect();
-            add.sort_by_key(|&r| (kind_rank(&roles[r].kind), r));
-            for r in add {
+            while !add.is_empty() {
+                let waiting = |r: usize| match roles[r].kind {
+                    RoleKind::Neutrino { lepton } => add.contains(&lepton),
+                    _ => comps_all.iter().any(|c| {
+                        c.parts.contains(&Part::Role(r))
+                            && c.whole.is_some_and(|w| add.contains(&w))
+                    }),
+                };
+                let missing = |r: usize| {
+                    comps_all
+                        .iter()
+                        .filter(|c| c.leaf_mask & (1 << r) != 0)
+                        .map(|c| (c.leaf_mask & !*placed).count_ones())
+                        .min()
+                        .unwrap_or(u32::MAX)
+                };
+                let pick = add
+                    .iter()
+                    .copied()
+                    .filter(|&r| !waiting(r))
+                    .min_by_key(|&r| (missing(r), kind_rank(&roles[r].kind), r))
+                    .or_else(|| {
+                        add.iter()
+                            .copied()
+                            .min_by_key(|&r| (kind_rank(&roles[r].kind), r))
+                    });
+                let Some(r) = pick else { break };
+                add.retain(|&x| x != r);
                 order.push(r);
                 *placed |= 1 << r;
             }
         };
-        loop {
-            let mut best: Option<(f64, usize)> = None;
-            for (k, &m) in cons_mask.iter().enumerate() {
-                let missing = m & !placed;
-                if missing == 0 {
-                    continue;
+        let cost_of = |missing: u16| {
+            let mut cost = 1.0;
+            for r in 0..n {
+                if missing & (1 << r) != 0 {
+                    cost *= branching(r);
                 }
-                let mut cost = 1.0;
-                for r in 0..n {
-                    if missing & (1 << r) != 0 {
-                        cost *= branching(r);
+            }
+            for g in h.interchangeable() {
+                let k = g.iter().filter(|&&r| missing & (1 << r) != 0).count();
+                cost /= (1..=k).product::<usize>() as f64;
+            }
+            cost
+        };
+        // An equal-mass constraint whose two sides share no role and hold
+        // every role splits the search: the side with more fillings is
+        // searched first and the other, last, is joined to it from a list
+        // built once per event (see `Join`).
+        let all = u16::MAX >> (16 - n);
+        let first_side = h.constraints().iter().find_map(|c| {
+            let ConstraintKind::EqualMass { composites: [a, b] } = c.kind else {
+                return None;
+            };
+            let (ma, mb) = (
+                need_of(h.composites()[a].leaf_mask),
+                need_of(h.composites()[b].leaf_mask),
+            );
+            if ma & mb != 0 || ma | mb != all {
+                return None;
+            }
+            let joinable = |m: u16| {
+                (0..n).all(|r| {
+                    m & (1 << r) == 0 || !matches!(roles[r].kind, RoleKind::LargeJet { .. })
+                }) && h
+                    .lepton_pairs()
+                    .iter()
+                    .all(|p| (m & (1 << p.roles[0]) == 0) == (m & (1 << p.roles[1]) == 0))
+            };
+            // The list is built for every event: only for a small side.
+            let small = |m: u16| joinable(m) && cost_of(m) <= MAX_JOIN_COST;
+            // The first side is searched, the other (small) one listed.
+            match (small(ma), small(mb)) {
+                (true, true) if cost_of(ma) < cost_of(mb) => Some(mb),
+                (_, true) => Some(ma),
+                (true, false) => Some(mb),
+                (false, false) => None,
+            }
+        });
+        for allowed in [first_side.unwrap_or(all), all] {
+            loop {
+                let mut best: Option<(f64, usize)> = None;
+                for (k, &m) in cons_mask.iter().enumerate() {
+                    let missing = m & !placed;
+                    if missing == 0 || m & !allowed != 0 {
+                        continue;
+                    }
+                    let cost = cost_of(missing);
+                    if best.is_none_or(|(c, _)| cost < c) {
+                        best = Some((cost, k));
                     }
                 }
-                for g in h.interchangeable() {
-                    let k = g.iter().filter(|&&r| missing & (1 << r) != 0).count();
-                    cost /= (1..=k).product::<usize>() as f64;
-                }
-                if best.is_none_or(|(c, _)| cost < c) {
-                    best = Some((cost, k));
+                match best {
+                    Some((_, k)) => push_sorted(cons_mask[k], &mut order, &mut placed),
+                    None => break,
                 }
             }
-            match best {
-                Some((_, k)) => push_sorted(cons_mask[k], &mut order, &mut placed),
-                None => break,
-            }
+            push_sorted(allowed, &mut order, &mut placed);
         }
         push_sorted(need_of(u16::MAX >> (16 - n)), &mut order, &mut placed);
 
@@ -743,17 +896,115 @@ impl Plan {
                 pair_checks,
                 comps: (c0, comp_ops.len()),
                 cons: (k0, con_ops.len()),
+                join: None,
             });
+        }
+        let joins = Self::joins(h, &order, &steps, &comp_close, &con_ops);
+        for (i, la) in joins.iter().enumerate() {
+            if steps[la.depth].join.is_none() {
+                steps[la.depth].join = Some(i);
+            }
         }
         Plan {
             steps,
             comp_ops,
             con_ops,
+            joins,
             nu_lepton: roles.iter().find_map(|r| match r.kind {
                 RoleKind::Neutrino { lepton } => Some(lepton),
                 _ => None,
             }),
         }
+    }
+
+    /// The joins of the equal-mass constraints (see [`Join`]): for those
+    /// whose sides are disjoint and whose open side fills every step after
+    /// the closed one, with no large jet, no lepton-pair rule, and no
+    /// constraint there other than the equal-mass one and mass constraints
+    /// inside the open side.
+    fn joins(
+        h: &Hypothesis,
+        order: &[usize],
+        steps: &[Step],
+        comp_close: &[usize],
+        con_ops: &[ConOp],
+    ) -> Vec<Join> {
+        let comps = h.composites();
+        let roles = h.roles();
+        let depth_of = |r: usize| order.iter().position(|&x| x == r).unwrap_or(0);
+        let mut out = Vec::new();
+        'constraints: for (k, c) in h.constraints().iter().enumerate() {
+            let ConstraintKind::EqualMass { composites: [a, b] } = c.kind else {
+                continue;
+            };
+            let (ma, mb) = (comps[a].leaf_mask, comps[b].leaf_mask);
+            if ma & mb != 0 || comp_close[a] == comp_close[b] {
+                continue;
+            }
+            let (closed, open) = if comp_close[a] < comp_close[b] {
+                (a, b)
+            } else {
+                (b, a)
+            };
+            let depth = comp_close[closed];
+            let open_mask = comps[open].leaf_mask;
+            let open_steps: Vec<usize> = (depth + 1..steps.len()).collect();
+            let mut fixed: Vec<usize> = (0..roles.len())
+                .filter(|&r| open_mask & (1 << r) != 0 && depth_of(r) <= depth)
+                .collect();
+            let mut n_incr = 0;
+            let mut eq_slot = usize::MAX;
+            for &d in &open_steps {
+                let st = &steps[d];
+                if open_mask & (1 << st.role) == 0
+                    || st.skip_if.is_some()
+                    || !st.pair_checks.is_empty()
+                {
+                    continue 'constraints;
+                }
+                match st.kind {
+                    StepKind::LargeJet { .. } => continue 'constraints,
+                    StepKind::Neutrino { lepton } if open_mask & (1 << lepton) == 0 => {
+                        if depth_of(lepton) > depth {
+                            continue 'constraints;
+                        }
+                        fixed.push(lepton);
+                    }
+                    _ => {}
+                }
+                n_incr += 1;
+                for op in &con_ops[st.cons.0..st.cons.1] {
+                    if op.k == k {
+                        eq_slot = n_incr;
+                    } else {
+                        let inside = |c: usize| comps[c].leaf_mask & !open_mask == 0;
+                        if op.only_closest || !inside(op.a) || !inside(op.b) {
+                            continue 'constraints;
+                        }
+                    }
+                    n_incr += 1;
+                }
+            }
+            // A list that depends on earlier roles would be rebuilt within
+            // the search, which costs more than it saves.
+            if eq_slot == usize::MAX || !fixed.is_empty() {
+                continue;
+            }
+            let mut eq = ConOp::new(k, c);
+            eq.a = closed;
+            eq.b = open;
+            out.push(Join {
+                depth,
+                eq,
+                closed,
+                open,
+                fixed,
+                open_steps,
+                n_incr,
+                eq_slot,
+            });
+        }
+        out
     }
 }
 
@@ -812,6 +1063,10 @@ struct Workspace {
     /// Four-vectors: roles, then composites (see [`SLOTS`]).
     p4s: [FourMomentum; SLOTS],
     comp_m: [f64; MAX_COMPOSITES],
+    /// Join lists (one per [`Plan::joins`]) and the number of this
+    /// search, which invalidates them.
+    lists: Vec<JoinList>,
+    searches: u64,
     /// Per composite: the sum of its sources fixed before the step that
     /// completes it (see [`CompOp`]).
     prefix: [FourMomentum; MAX_COMPOSITES],
@@ -908,6 +1163,16 @@ impl Searcher {
             p4s: [FourMomentum::ZERO; SLOTS],
             comp_m: [0.0; MAX_COMPOSITES],
             prefix: [FourMomentum::ZERO; MAX_COMPOSITES],
+            lists: plan
+                .joins
+                .iter()
+                .map(|la| JoinList {
+                    entries: Vec::with_capacity(MAX_JOIN_ENTRIES),
+                    incr: Vec::with_capacity(MAX_JOIN_ENTRIES * la.n_incr),
+                    ..JoinList::default()
+                })
+                .collect(),
+            searches: 0,
             thr: f64::INFINITY,
             best: Vec::with_capacity(config.k_best + 1),
             k: config.k_best,
@@ -972,6 +1237,7 @@ impl Searcher {
         let plan = &self.plan;
         ws.best.clear();
         ws.thr = f64::INFINITY;
+        ws.searches += 1;
         ws.evaluated = Evaluated::default();
         ws.load_objects(
             event,
@@ -1026,6 +1292,9 @@ impl Searcher {
         }
         ws.prepare_closest(hyp);
         ws.choice = [NONE; MAX_ROLES];
+        if self.config.prune {
+            ws.prepare_joins(hyp, plan);
+        }
         ws.dfs(hyp, plan, 0, 0.0, Occupancy::default());
         if !ws.best.is_empty() {
             SearchStatus::Found
@@ -1499,6 +1768,205 @@ impl Workspace {
         }
     }
 
+    /// Completes the assignment below join `i`'s step from its list (see
+    /// [`Join`]), given the running χ² `v` and the objects used;
+    /// `false` if the list cannot be used here (the caller descends).
+    fn join(&mut self, hyp: &Hypothesis, plan: &Plan, i: usize, v: f64, occ: Occupancy) -> bool {
+        let la = &plan.joins[i];
+        let m_closed = self.comp_m[la.closed % MAX_COMPOSITES];
+        if !(m_closed >= 0.0 && m_closed.is_finite()) {
+            return false;
+        }
+        let mut key = [NONE; MAX_ROLES];
+        for &r in &la.fixed {
+            key[r] = self.choice[r];
+        }
+        if self.lists[i].stamp != self.searches || self.lists[i].key != key {
+            self.build_join(hyp, plan, i, key);
+        }
+        if self.lists[i].overflow {
+            return false;
+        }
+        let used_jets = occ.used[0] | occ.blocked;
+        let used_leps = occ.used[1];
+        let n_roles = hyp.roles().len();
+        // The list is moved out while it is walked (no copy: a `Vec` swap).
+        let t = std::mem::take(&mut self.lists[i]);
+        let entries = &t.entries[..];
+        let split = entries.partition_point(|e| e.mass < m_closed);
+        let mut complete = 0;
+        let mut visit = |ws: &mut Self, e: &JoinEntry| -> bool {
+            let t_eq = la.eq.term_of(m_closed, e.mass);
+            // Every other addition is ≥ 0 and floating-point addition of
+            // non-negative numbers is monotonic, so the replayed sum is at
+            // least `v + t_eq`; shaved because farther entries' terms may
+            // round below this one's by an ulp.
+            if v + t_eq * (1.0 - 1e-12) > ws.thr {
+                return false;
+            }
+            if v + (t_eq + e.rest) * (1.0 - 1e-12) <= ws.thr
+                && e.jets & used_jets == 0
+                && e.leps & used_leps == 0
+            {
+                let mut x = v;
+                for (k, &a) in t.incr[e.at..e.at + la.n_incr].iter().enumerate() {
+                    x += if k == la.eq_slot { t_eq } else { a };
+                }
+                complete += 1;
+                if x <= ws.thr {
+                    for (s, &d) in la.open_steps.iter().enumerate() {
+                        ws.choice[plan.steps[d].role % MAX_ROLES] = e.objs[s];
+                    }
+                    ws.record(x, n_roles);
+                }
+            }
+            true
+        };
+        // Outwards on each side of the closed mass.
+        for e in &entries[split..] {
+            if !visit(self, e) {
+                break;
+            }
+        }
+        for e in entries[..split].iter().rev() {
+            if !visit(self, e) {
+                break;
+            }
+        }
+        self.lists[i] = t;
+        self.evaluated.complete += complete;
+        true
+    }
+
+    /// Builds, at the start of a search, the lists of joins that depend on
+    /// no earlier role, and raises the lower bound on the χ² still to come
+    /// for the steps before each join by its list's smallest sum of
+    /// additions (the equal-mass term, ≥ 0, left out).
+    fn prepare_joins(&mut self, hyp: &Hypothesis, plan: &Plan) {
+        for (i, la) in plan.joins.iter().enumerate() {
+            if !la.fixed.is_empty() {
+                continue;
+            }
+            self.build_join(hyp, plan, i, [NONE; MAX_ROLES]);
+            let t = &self.lists[i];
+            if t.overflow {
+                continue;
+            }
+            let min_rest = t
+                .entries
+                .iter()
+                .map(|e| e.rest)
+                .fold(f64::INFINITY, f64::min);
+            // Replaces the b-tag part of the open steps (each entry holds
+            // its own b-tag terms). No entry: nothing can complete.
+            let old = self.rest_min;
+            let mut below = min_rest;
+            for d in (0..=la.depth).rev() {
+                below += old[d] - old[d + 1];
+                self.rest_min[d] = below.max(0.0);
+            }
+        }
+    }
+
+    /// Lists the fillings of join `i`'s open roles for `key` by replaying
+    /// the search's steps.
+    fn build_join(&mut self, hyp: &Hypothesis, plan: &Plan, i: usize, key: [u8; MAX_ROLES]) {
+        let mut t = std::mem::take(&mut self.lists[i]);
+        t.entries.clear();
+        t.incr.clear();
+        t.overflow = false;
+        t.stamp = self.searches;
+        t.key = key;
+        let mut objs = [NONE; MAX_ROLES];
+        let mut incr = [0.0; 2 * MAX_ROLES + MAX_CONSTRAINTS];
+        self.fill_join(
+            hyp,
+            plan,
+            i,
+            0,
+            &mut objs,
+            &mut incr,
+            0,
+            Occupancy::default(),
+            &mut t,
+        );
+        if !t.overflow {
+            t.entries.sort_unstable_by(|a, b| a.mass.total_cmp(&b.mass));
+        }
+        self.evaluated.partial += t.entries.len() as u64;
+        self.lists[i] = t;
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn fill_join(
+        &mut self,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        i: usize,
+        s: usize,
+        objs: &mut [u8; MAX_ROLES],
+        incr: &mut [f64; 2 * MAX_ROLES + MAX_CONSTRAINTS],
+        n_incr: usize,
+        occ: Occupancy,
+        t: &mut JoinList,
+    ) {
+        let la = &plan.joins[i];
+        if t.overflow {
+            return;
+        }
+        let Some(&d) = la.open_steps.get(s) else {
+            let mass = self.comp_m[la.open % MAX_COMPOSITES];
+            // A NaN mass gives a NaN χ², never recorded; leaving it out
+            // keeps the list ordered for the outward walk.
+            if mass.is_nan() {
+                return;
+            }
+            if t.entries.len() == MAX_JOIN_ENTRIES {
+                t.overflow = true;
+                return;
+            }
+            t.entries.push(JoinEntry {
+                mass,
+                jets: occ.used[0],
+                leps: occ.used[1],
+                objs: *objs,
+                at: t.incr.len(),
+                rest: incr[..n_incr].iter().sum(),
+            });
+            t.incr.extend_from_slice(&incr[..n_incr]);
+            return;
+        };
+        let step = &plan.steps[d];
+        let (mut mask, _) = self.admissible_objects(hyp, step, d, &occ);
+        let ops = &plan.comp_ops[step.comps.0..step.comps.1];
+        let cons = &plan.con_ops[step.cons.0..step.cons.1];
+        self.prepare_prefixes(ops);
+        let role = step.role % MAX_ROLES;
+        let (base, kind) = self.pool(step);
+        let row = self.pen_row[d] % 3;
+        while mask != 0 {
+            let o = mask.trailing_zeros() as usize;
+            mask &= mask - 1;
+            self.choice[role] = o as u8;
+            objs[s] = o as u8;
+            self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+            let mut n = n_incr;
+            incr[n] = self.pen[row][o % MAX_JETS];
+            n += 1;
+            for op in cons {
+                incr[n] = if op.k == la.eq.k {
+                    0.0
+                } else {
+                    op.term(&self.comp_m)
+                };
+                n += 1;
+            }
+            let mut occ = occ;
+            occ.used[kind] |= 1 << o;
+            self.fill_join(hyp, plan, i, s + 1, objs, incr, n, occ, t);
+        }
+    }
+
     fn dfs(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, partial: f64, occ: Occupancy) {
         let step = &plan.steps[d];
         let (mask, none) = self.admissible_objects(hyp, step, d, &occ);
@@ -1510,8 +1978,7 @@ impl Workspace {
         self.prepare_prefixes(ops);
         let role = step.role % MAX_ROLES;
         let (base, kind) = self.pool(step);
-        let pen = &self.pen[self.pen_row[d] % 3];
-        let pen: [f64; MAX_JETS] = *pen;
+        let row = self.pen_row[d] % 3;
         if d + 1 == plan.steps.len() {
             let n_roles = hyp.roles().len();
             let mut n = 0u64;
@@ -1528,7 +1995,7 @@ impl Workspace {
                 m &= m - 1;
                 self.choice[role] = o as u8;
                 self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
-                let v = self.eval_cons(cons, partial + pen[o % MAX_JETS]);
+                let v = self.eval_cons(cons, partial + self.pen[row][o % MAX_JETS]);
                 self.record(v, n_roles);
                 n += 1;
             }
@@ -1559,7 +2026,10 @@ impl Workspace {
                 let o = m.trailing_zeros() as usize;
                 m &= m - 1;
                 self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
-                self.buf[d][n] = (self.eval_cons(cons, partial + pen[o % MAX_JETS]), o as u8);
+                self.buf[d][n] = (
+                    self.eval_cons(cons, partial + self.pen[row][o % MAX_JETS]),
+                    o as u8,
+                );
                 n += 1;
             }
             self.evaluated.partial += n as u64;
@@ -1582,12 +2052,12 @@ impl Workspace {
                 self.choice[role] = obj;
                 if obj == NONE {
                     self.close_comps(ops, role, FourMomentum::ZERO);
-                    self.dfs(hyp, plan, d + 1, v, occ);
+                    self.descend(hyp, plan, d, v, occ);
                 } else {
                     let o = obj as usize;
                     self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
                     let occ = placed(self, o);
-                    self.dfs(hyp, plan, d + 1, v, occ);
+                    self.descend(hyp, plan, d, v, occ);
                 }
             }
         } else {
@@ -1598,7 +2068,7 @@ impl Workspace {
                 let v = self.eval_cons(cons, partial);
                 n += 1;
                 if self.admissible(v, rest) {
-                    self.dfs(hyp, plan, d + 1, v, occ);
+                    self.descend(hyp, plan, d, v, occ);
                 }
             }
             let mut m = mask;
@@ -1607,15 +2077,27 @@ impl Workspace {
                 m &= m - 1;
                 self.choice[role] = o as u8;
                 self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
-                let v = self.eval_cons(cons, partial + pen[o % MAX_JETS]);
+                let v = self.eval_cons(cons, partial + self.pen[row][o % MAX_JETS]);
                 n += 1;
                 if self.admissible(v, rest) {
                     let occ = placed(self, o);
-                    self.dfs(hyp, plan, d + 1, v, occ);
+                    self.descend(hyp, plan, d, v, occ);
                 }
             }
             self.evaluated.partial += n;
         }
+    }
+
+    /// Goes on from step `d` (its candidate placed, running χ² `v`): by the
+    /// step's join if it has one, else by the next step.
+    #[inline(always)]
+    fn descend(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, v: f64, occ: Occupancy) {
+        if let (Some(i), true) = (plan.steps[d].join, self.prune) {
+            if self.join(hyp, plan, i, v, occ) {
+                return;
+            }
+        }
+        self.dfs(hyp, plan, d + 1, v, occ);
     }
 
     /// Replays a stored assignment to report its objects, masses and terms.
@@ -1696,6 +2178,58 @@ impl Workspace {
             leaf_masks,
             terms,
             neutrino,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The join's outward walk relies on this: for a closed mass ≥ 0, the
+    /// equal-mass term never decreases as the other mass moves away from it
+    /// on either side (negative masses of space-like sums and the σ floor
+    /// included).
+    #[test]
+    fn equal_mass_term_grows_with_distance() {
+        let mut seed = 0x1234_5678_9abc_def1u64;
+        let mut next = || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            (seed >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for (shape, width) in [
+            (ConShape::EqualRelative, 0.10),
+            (ConShape::EqualRelative, 1e-9),
+            (ConShape::EqualAbsolute, 25.0),
+        ] {
+            let op = ConOp {
+                k: 0,
+                shape,
+                a: 0,
+                b: 1,
+                target: 0.0,
+                width,
+                only_closest: false,
+            };
+            for _ in 0..20_000 {
+                let closed = 2000.0 * next() * next();
+                let near = -50.0 + 2100.0 * next();
+                let step = 500.0 * next() * next();
+                let far = if near >= closed {
+                    near + step
+                } else {
+                    near - step
+                };
+                let (t_near, t_far) = (op.term_of(closed, near), op.term_of(closed, far));
+                assert!(
+                    t_far >= t_near * (1.0 - 1e-12),
+                    "{shape:?}: closed {closed}, near {near} ({t_near}), far {far} ({t_far})"
+                );
+                // Symmetric in the two masses, bit for bit.
+                assert_eq!(op.term_of(closed, near), op.term_of(near, closed));
+            }
         }
     }
 }

@@ -1,0 +1,139 @@
+//! The join that completes a small side of an equal-mass constraint from a
+//! per-event list (bW pair: the leptonic heavy quark) must give exactly the
+//! K best of plain enumeration, ties included, under every b-tag policy.
+//! Checked on the benchmark's physical events (exact two-body decays, shared
+//! with `benches/assign.rs`) and against the independent enumeration of
+//! `common/mod.rs`.
+
+#[path = "../examples/support/bench_events.rs"]
+mod bench_events;
+mod common;
+
+use common::{exhaustive, lib_objs, normalise};
+use quarry_assign::{presets, BtagPolicy, SearchConfig, Searcher};
+use quarry_event::{Event, Jet};
+
+fn policies() -> [BtagPolicy; 3] {
+    [
+        BtagPolicy::Ignore,
+        BtagPolicy::default(),
+        BtagPolicy::weighted_default(),
+    ]
+}
+
+/// Pruned search (with the join) against the same search without pruning
+/// (every assignment scored): identical ranked lists, bit for bit.
+fn same_as_plain(name: &str, e: &Event, cfg: SearchConfig) -> (u64, u64) {
+    let h = presets::get(name).unwrap();
+    let out = Searcher::new(&h, cfg).unwrap().search(e);
+    let plain = Searcher::new(
+        &h,
+        SearchConfig {
+            prune: false,
+            ..cfg
+        },
+    )
+    .unwrap()
+    .search(e);
+    assert_eq!(out.status, plain.status, "event {}", e.id);
+    assert_eq!(out.ranked, plain.ranked, "event {} {cfg:?}", e.id);
+    (out.evaluated.complete, plain.evaluated.complete)
+}
+
+#[test]
+fn bw_bench_events_match_plain_enumeration() {
+    let (bw, _, _) = bench_events::bench_events();
+    for e in bw.iter().take(96) {
+        for btag in policies() {
+            for k_best in [1, 3, 5] {
+                same_as_plain(
+                    "bwbw-ljets",
+                    e,
+                    SearchConfig {
+                        btag,
+                        k_best,
+                        ..SearchConfig::default()
+                    },
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn bw_bench_events_match_independent_enumeration() {
+    let h = presets::get("bwbw-ljets").unwrap();
+    let (bw, _, _) = bench_events::bench_events();
+    for e in bw.iter().step_by(16) {
+        for btag in policies() {
+            let cfg = SearchConfig {
+                btag,
+                k_best: 4,
+                ..SearchConfig::default()
+            };
+            let exh = exhaustive(&h, e, &cfg);
+            let out = Searcher::new(&h, cfg).unwrap().search(e);
+            assert_eq!(out.ranked.len(), exh.len().min(4), "event {}", e.id);
+            for (a, s) in out.ranked.iter().zip(&exh) {
+                assert!(
+                    (a.chi2() - s.chi2).abs() <= 1e-9 * s.chi2.max(1.0),
+                    "event {}: {} vs {}",
+                    e.id,
+                    a.chi2(),
+                    s.chi2
+                );
+            }
+            if exh.len() > 1 && (exh[0].chi2 - exh[1].chi2).abs() > 1e-9 * exh[0].chi2.max(1.0) {
+                assert_eq!(lib_objs(&h, &out.ranked[0]), normalise(&h, &exh[0].objs));
+            }
+        }
+    }
+}
+
+/// Identical jets make assignments with identical χ²: the tie-break (objects
+/// in role order) must still be that of plain enumeration.
+#[test]
+fn ties_from_identical_jets_break_as_in_plain_enumeration() {
+    let (bw, _, _) = bench_events::bench_events();
+    for (i, e) in bw.iter().take(48).enumerate() {
+        let mut e = e.clone();
+        let copy: Jet = e.jets[i % e.jets.len()];
+        e.jets.push(copy.with_index(99));
+        for btag in policies() {
+            same_as_plain(
+                "bwbw-ljets",
+                &e,
+                SearchConfig {
+                    btag,
+                    k_best: 5,
+                    max_jets_override: Some(7),
+                    ..SearchConfig::default()
+                },
+            );
+        }
+    }
+}
+
+/// The join must actually cut the work: on the bench's bW events without
+/// b-tags, under a tenth of the assignments is scored in full.
+#[test]
+fn join_scores_few_complete_assignments() {
+    let (bw, _, _) = bench_events::bench_events();
+    let (mut pruned, mut all) = (0, 0);
+    for e in bw.iter().take(128) {
+        let (p, a) = same_as_plain(
+            "bwbw-ljets",
+            e,
+            SearchConfig {
+                btag: BtagPolicy::Ignore,
+                ..SearchConfig::default()
+            },
+        );
+        pruned += p;
+        all += a;
+    }
+    assert!(
+        pruned * 10 < all,
+        "{pruned} of {all} complete assignments scored"
+    );
+}
