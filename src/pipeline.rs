@@ -94,7 +94,7 @@ pub enum Status {
     /// still reported).
     FitNotConverged,
     /// The event could not be used: rejected by the CSV reader, or (for
-    /// events built in code) a non-finite momentum.
+    /// events built in code) a non-finite momentum or weight.
     BadInput,
 }
 
@@ -677,6 +677,16 @@ impl Worker<'_> {
     /// reconstructs it under every hypothesis (results in hypothesis order).
     pub fn reconstruct(&mut self, mut event: Event) -> Vec<Reconstruction> {
         let p = self.pipeline;
+        if !event.weight.is_finite() {
+            // Only events built in code can get here (the reader rejects a
+            // non-finite weight): never let it pass as a number.
+            let reason = format!("event weight {} is not finite", event.weight);
+            return p
+                .hypotheses
+                .iter()
+                .map(|h| bad(event.id, event.weight, h, reason.clone()))
+                .collect();
+        }
         if let Some(sel) = &p.selection {
             sel.apply(&mut event);
         }
