@@ -423,3 +423,28 @@ fn fit_of_hostile_lepton_and_met_is_finite_or_failed() {
     assert_eq!(runs + refused, leptons.len() * mets.len());
     assert!(runs >= 1 && refused >= 1, "runs {runs}, refused {refused}");
 }
+
+/// A non-finite event weight (possible only for events built in code: the
+/// reader rejects it) never reaches a result as if it were a number: the
+/// event is `bad_input` for every hypothesis.
+#[test]
+fn non_finite_weight_is_bad_input() {
+    let p = &pipelines()[0];
+    for w in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+        let mut e = Event::new(3);
+        for (i, pt) in [90.0, 70.0, 55.0, 60.0].into_iter().enumerate() {
+            e.jets.push(
+                Jet::new(
+                    FourMomentum::from_pt_eta_phi_m(pt, 0.1 * i as f64, i as f64, 5.0),
+                    0.5,
+                )
+                .with_index(i as u32),
+            );
+        }
+        e.weight = w;
+        for r in p.reconstruct(&e) {
+            assert_eq!(r.status, Status::BadInput, "weight {w}: {:?}", r.status);
+            assert!(!r.reason.is_empty());
+        }
+    }
+}
