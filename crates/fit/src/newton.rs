@@ -41,7 +41,8 @@ use argmin::core::{Error, IterState, Problem, Solver, TerminationReason, Termina
 
 use crate::input::MAX_PARAMS;
 use crate::problem::{
-    back_solve, cholesky, forward_solve, Expansion, KinematicChi2, Params, MAX_TERMS,
+    back_solve, cholesky, forward_solve, modified_cholesky, with_const_dim, Expansion,
+    KinematicChi2, Params, MAX_TERMS,
 };
 
 /// argmin state of the Newton–Lagrange solver: parameters and cost only.
@@ -67,8 +68,9 @@ const FILTER_MARGIN: f64 = 1e-4;
 const MAX_FILTER: usize = 48;
 /// Most step halvings per line search.
 const MAX_BACKTRACKS: usize = 30;
-/// Weights ρ of the 2ρÃᵀÃ term tried in turn for a positive-definite G.
-const RHO_STEPS: [f64; 2] = [1.0, 1e2];
+/// Weight ρ of the 2ρÃᵀÃ term in G (it leaves the step unchanged when G
+/// is positive definite; larger ρ makes that more frequent).
+const RHO: f64 = 1e2;
 
 /// Work arrays of the solver, owned by the fitter and reused for every fit.
 #[derive(Clone)]
@@ -78,6 +80,7 @@ pub(crate) struct Workspace {
     /// second evaluation).
     buffers: [Expansion; 2],
     cur: usize,
+    kkt: Kkt,
     filter: [(f64, f64); MAX_FILTER],
 }
 
@@ -93,6 +96,7 @@ impl Default for Workspace {
         Workspace {
             buffers: [Expansion::empty(), Expansion::empty()],
             cur: 0,
+            kkt: Kkt::new(),
             filter: [(0.0, 0.0); MAX_FILTER],
         }
     }
@@ -158,17 +162,6 @@ impl<'w> NewtonLagrange<'w> {
         Ok((state, None))
     }
 
-    /// The filter test (Fletcher and Leyffer): a trial point (f, h), h the
-    /// constraint violation Σ|c̃_t|, is acceptable if against the current
-    /// point and every earlier iterate it reduces h or f by a margin.
-    fn acceptable(&self, f: f64, h: f64, f0: f64, h0: f64) -> bool {
-        let beats =
-            |(fj, hj): (f64, f64)| h <= (1.0 - FILTER_MARGIN) * hj || f <= fj - FILTER_MARGIN * h;
-        f.is_finite()
-            && beats((f0, h0))
-            && self.ws.filter[..self.n_filter].iter().all(|&e| beats(e))
-    }
-
     /// Moves to `x` and expands there; false if the expansion is not
     /// finite.
     fn accept(&mut self, problem: &KinematicChi2, x: Params) -> bool {
@@ -212,91 +205,16 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
         let n = p.n_params();
         let m = if self.constrained { p.n_terms() } else { 0 };
         let cur = self.ws.cur;
-        let e = &self.ws.buffers[cur];
-
-        // G = H + 2ρÃᵀÃ = LLᵀ, positive definite if possible.
-        let mut g_mat = [0.0; MAX_PARAMS * MAX_PARAMS];
-        let mut l = [0.0; MAX_PARAMS * MAX_PARAMS];
-        let mut factored = false;
-        let rho_steps: &[f64] = if m > 0 { &RHO_STEPS } else { &[0.0] };
-        let mut rho = 0.0;
-        for &r in rho_steps {
-            rho = r;
-            fill_g(&mut g_mat, e, n, m, rho);
-            if cholesky(&g_mat, n, 0.0, &mut l) {
-                factored = true;
-                break;
-            }
-        }
-        if !factored {
-            // Modified Newton: the smallest tried µ that makes G + µI
-            // positive definite (a small µ keeps the step close to
-            // Newton's; larger first guesses measurably slow convergence).
-            let scale = (0..n).map(|i| g_mat[i * n + i].abs()).fold(1e-12, f64::max);
-            let mut shift = 1e-8 * scale;
-            for _ in 0..60 {
-                if cholesky(&g_mat, n, shift, &mut l) {
-                    factored = true;
-                    break;
-                }
-                shift *= 4.0;
-            }
-            if !factored {
-                return self.fail(state);
-            }
-        }
-
-        // Range-space solution of the KKT system:
-        // u = L⁻¹ r with r = −∇f − 2ρÃᵀc̃, W = L⁻¹Ãᵀ (rows w_t),
-        // S λ⁺ = Wᵀu + c̃, Δ = L⁻ᵀ(u − Wλ⁺).
-        let mut u = [0.0; MAX_PARAMS];
-        for i in 0..n {
-            let mut r = -e.g[i];
-            for t in 0..m {
-                r -= 2.0 * rho * e.a[t][i] * e.c[t];
-            }
-            u[i] = r;
-        }
-        forward_solve(&l, n, &mut u);
-        let mut w = [[0.0; MAX_PARAMS]; MAX_TERMS];
-        let mut s_chol = [0.0; MAX_TERMS * MAX_TERMS];
-        let mut lambda_new = [0.0; MAX_TERMS];
-        let mut v = u;
-        if m > 0 {
-            let mut s = [0.0; MAX_TERMS * MAX_TERMS];
-            for t in 0..m {
-                w[t][..n].copy_from_slice(&e.a[t][..n]);
-                forward_solve(&l, n, &mut w[t]);
-            }
-            for a in 0..m {
-                for b in 0..=a {
-                    let sab = dot(&w[a][..n], &w[b][..n]);
-                    s[a * m + b] = sab;
-                    s[b * m + a] = sab;
-                }
-            }
-            if !cholesky(&s, m, 0.0, &mut s_chol) {
-                return self.fail(state);
-            }
-            for t in 0..m {
-                lambda_new[t] = dot(&w[t][..n], &u[..n]) + e.c[t];
-            }
-            forward_solve(&s_chol, m, &mut lambda_new);
-            back_solve(&s_chol, m, &mut lambda_new);
-            for t in 0..m {
-                for i in 0..n {
-                    v[i] -= w[t][i] * lambda_new[t];
-                }
-            }
-        }
-        let mut step = v;
-        back_solve(&l, n, &mut step);
-        if !step[..n].iter().all(|v| v.is_finite()) {
+        let ws = &mut *self.ws;
+        let kkt = &mut ws.kkt;
+        let e = &ws.buffers[cur];
+        if !kkt.solve(e, n, m) {
             return self.fail(state);
         }
         let mut delta = Params::zeros();
-        delta.as_mut_slice()[..n].copy_from_slice(&step[..n]);
-        let gd = dot(&e.g[..n], &step[..n]);
+        delta.as_mut_slice()[..n].copy_from_slice(&kkt.step[..n]);
+        let gd = dot(&e.g[..n], &kkt.step[..n]);
+        let (f0, h0) = (e.f, e.c[..m].iter().map(|v| v.abs()).sum::<f64>());
 
         // Convergence: the full step is negligible.
         let converging = if m == 0 {
@@ -308,7 +226,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
             let xt = self.x + delta;
             let (ft, _) = p.value_and_residuals(&xt);
             let ok = if m == 0 {
-                ft <= e.f
+                ft <= f0
             } else {
                 ft.is_finite() && p.max_violation(&p.to_physical(&xt)) < self.violation_tolerance
             };
@@ -320,18 +238,16 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
             if m == 0 {
                 // Already at the minimum to rounding.
                 self.progress = Progress::Converged;
-                let f = e.f;
-                return Ok((state.cost(f), None));
+                return Ok((state.cost(f0), None));
             }
         }
 
         // Line search from the full step: Armijo on f without constraints,
         // the filter test with them.
-        let h0: f64 = e.c[..m].iter().map(|v| v.abs()).sum();
-        let f0 = e.f;
         if m == 0 && (gd >= 0.0 || gd.is_nan()) {
             return self.fail(state);
         }
+        let filter = &ws.filter[..self.n_filter];
         let mut alpha = 1.0;
         let mut accepted: Option<(Params, f64)> = None;
         let mut full_step_expanded = false;
@@ -340,8 +256,8 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
             let (ft, ct) = if k == 0 {
                 // The full step is usually accepted: expand there at once
                 // (with the multipliers it brings) into the spare buffer.
-                let trial = &mut self.ws.buffers[1 - cur];
-                p.expand_into(&xt, &lambda_new, trial);
+                let trial = &mut ws.buffers[1 - cur];
+                p.expand_into(&xt, &kkt.lambda, trial);
                 (trial.f, trial.c)
             } else {
                 p.value_and_residuals(&xt)
@@ -350,7 +266,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
             let ok = if m == 0 {
                 ft <= f0 + ARMIJO * alpha * gd
             } else {
-                self.acceptable(ft, ht, f0, h0)
+                filter_accepts(filter, ft, ht, f0, h0)
             };
             if ok {
                 accepted = Some((xt, alpha));
@@ -358,27 +274,10 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
                 break;
             }
             if k == 0 && m > 0 && ft.is_finite() {
-                // Second-order correction: the least-G-norm step back onto
-                // the linearised constraints at the trial point,
-                // −G⁻¹Ãᵀ S⁻¹ c̃(x + Δ) = −L⁻ᵀ W S⁻¹ c̃(x + Δ).
-                let mut z = [0.0; MAX_TERMS];
-                z[..m].copy_from_slice(&ct[..m]);
-                forward_solve(&s_chol, m, &mut z);
-                back_solve(&s_chol, m, &mut z);
-                let mut d = [0.0; MAX_PARAMS];
-                for t in 0..m {
-                    for i in 0..n {
-                        d[i] -= w[t][i] * z[t];
-                    }
-                }
-                back_solve(&l, n, &mut d);
-                let mut xs = xt;
-                for i in 0..n {
-                    xs[i] += d[i];
-                }
+                let xs = xt + kkt.second_order_correction(&ct, n, m);
                 let (fs, cs) = p.value_and_residuals(&xs);
                 let hs: f64 = cs[..m].iter().map(|v| v.abs()).sum();
-                if self.acceptable(fs, hs, f0, h0) {
+                if filter_accepts(filter, fs, hs, f0, h0) {
                     accepted = Some((xs, 1.0));
                     break;
                 }
@@ -389,19 +288,16 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
             return self.fail(state);
         };
         if m > 0 && self.n_filter < MAX_FILTER {
-            self.ws.filter[self.n_filter] = (f0, h0);
+            ws.filter[self.n_filter] = (f0, h0);
             self.n_filter += 1;
         }
         for t in 0..m {
-            self.lambda[t] += alpha * (lambda_new[t] - self.lambda[t]);
+            self.lambda[t] += alpha * (kkt.lambda[t] - self.lambda[t]);
         }
         if full_step_expanded {
             self.x = x_new;
-            self.ws.cur = 1 - cur;
-            if !self.ws.buffers[self.ws.cur].g[..n]
-                .iter()
-                .all(|v| v.is_finite())
-            {
+            ws.cur = 1 - cur;
+            if !ws.buffers[ws.cur].g[..n].iter().all(|v| v.is_finite()) {
                 return self.fail(state);
             }
         } else if !self.accept(p, x_new) {
@@ -424,22 +320,166 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
     }
 }
 
+/// Scratch space of one Newton–Lagrange step: G = H + 2ρÃᵀÃ, its
+/// Cholesky factor L, W = L⁻¹Ãᵀ (rows w_t), the Cholesky factor of
+/// S = WᵀW, the step and the new multipliers. Kept in the [`Workspace`]
+/// so that no iteration re-zeroes ~10 KB of arrays.
+#[derive(Clone)]
+struct Kkt {
+    g: [f64; MAX_PARAMS * MAX_PARAMS],
+    l: [f64; MAX_PARAMS * MAX_PARAMS],
+    w: [[f64; MAX_PARAMS]; MAX_TERMS],
+    s: [f64; MAX_TERMS * MAX_TERMS],
+    s_chol: [f64; MAX_TERMS * MAX_TERMS],
+    step: [f64; MAX_PARAMS],
+    lambda: [f64; MAX_TERMS],
+}
+
+impl Kkt {
+    fn new() -> Self {
+        Kkt {
+            g: [0.0; MAX_PARAMS * MAX_PARAMS],
+            l: [0.0; MAX_PARAMS * MAX_PARAMS],
+            w: [[0.0; MAX_PARAMS]; MAX_TERMS],
+            s: [0.0; MAX_TERMS * MAX_TERMS],
+            s_chol: [0.0; MAX_TERMS * MAX_TERMS],
+            step: [0.0; MAX_PARAMS],
+            lambda: [0.0; MAX_TERMS],
+        }
+    }
+
+    /// The Newton (m = 0) or Newton–Lagrange step at the expansion `e`
+    /// into `step` and `lambda`; false if no factorisation exists or the
+    /// step is not finite.
+    fn solve(&mut self, e: &Expansion, n: usize, m: usize) -> bool {
+        // G = H + 2ρÃᵀÃ = LLᵀ, positive definite if possible.
+        let rho = if m > 0 { RHO } else { 0.0 };
+        if m == 0 {
+            // No constraints: the trial expansion must see no multipliers.
+            self.lambda = [0.0; MAX_TERMS];
+        }
+        fill_g(&mut self.g, e, n, m, rho);
+        if !cholesky(&self.g, n, 0.0, &mut self.l) {
+            let scale = (0..n)
+                .map(|i| self.g[i * n + i].abs())
+                .fold(1e-12, f64::max);
+            let factored = if m == 0 {
+                // Unconstrained: flip and floor non-positive pivots.
+                modified_cholesky(&self.g, n, 1e-8 * scale, &mut self.l)
+            } else {
+                // The smallest tried µ that makes G + µI positive
+                // definite: a small µ keeps the step close to Newton's
+                // (a larger first guess, or flipped pivots, measurably
+                // slow convergence here).
+                let mut shift = 1e-8 * scale;
+                let mut ok = false;
+                for _ in 0..60 {
+                    if cholesky(&self.g, n, shift, &mut self.l) {
+                        ok = true;
+                        break;
+                    }
+                    shift *= 4.0;
+                }
+                ok
+            };
+            if !factored {
+                return false;
+            }
+        }
+        // Range-space solution of the KKT system:
+        // u = L⁻¹r with r = −∇f − 2ρÃᵀc̃; S λ⁺ = Wᵀu + c̃; Δ = L⁻ᵀ(u − Wλ⁺).
+        let u = &mut self.step;
+        for i in 0..n {
+            let mut r = -e.g[i];
+            for t in 0..m {
+                r -= 2.0 * rho * e.a[t][i] * e.c[t];
+            }
+            u[i] = r;
+        }
+        forward_solve(&self.l, n, u);
+        if m > 0 {
+            for t in 0..m {
+                self.w[t][..n].copy_from_slice(&e.a[t][..n]);
+                forward_solve(&self.l, n, &mut self.w[t]);
+            }
+            for a in 0..m {
+                for b in 0..=a {
+                    let sab = dot(&self.w[a][..n], &self.w[b][..n]);
+                    self.s[a * m + b] = sab;
+                    self.s[b * m + a] = sab;
+                }
+            }
+            if !cholesky(&self.s, m, 0.0, &mut self.s_chol) {
+                return false;
+            }
+            for t in 0..m {
+                self.lambda[t] = dot(&self.w[t][..n], &u[..n]) + e.c[t];
+            }
+            forward_solve(&self.s_chol, m, &mut self.lambda);
+            back_solve(&self.s_chol, m, &mut self.lambda);
+            for t in 0..m {
+                let lt = self.lambda[t];
+                for (ui, wi) in u[..n].iter_mut().zip(&self.w[t][..n]) {
+                    *ui -= wi * lt;
+                }
+            }
+        }
+        back_solve(&self.l, n, u);
+        u[..n].iter().all(|v| v.is_finite())
+    }
+
+    /// Second-order correction at a trial point with residuals `c`: the
+    /// least-G-norm step back onto the linearised constraints,
+    /// −G⁻¹Ãᵀ S⁻¹ c = −L⁻ᵀ W S⁻¹ c (after [`solve`](Self::solve)).
+    fn second_order_correction(&self, c: &[f64; MAX_TERMS], n: usize, m: usize) -> Params {
+        let mut z = *c;
+        forward_solve(&self.s_chol, m, &mut z);
+        back_solve(&self.s_chol, m, &mut z);
+        let mut d = [0.0; MAX_PARAMS];
+        for t in 0..m {
+            for i in 0..n {
+                d[i] -= self.w[t][i] * z[t];
+            }
+        }
+        back_solve(&self.l, n, &mut d);
+        let mut out = Params::zeros();
+        out.as_mut_slice()[..n].copy_from_slice(&d[..n]);
+        out
+    }
+}
+
+/// The filter test (Fletcher and Leyffer): a trial point (f, h), h the
+/// constraint violation Σ|c̃_t|, is acceptable if against the current point
+/// (f0, h0) and every earlier iterate in `filter` it reduces h or f by a
+/// margin.
+fn filter_accepts(filter: &[(f64, f64)], f: f64, h: f64, f0: f64, h0: f64) -> bool {
+    let beats =
+        |(fj, hj): (f64, f64)| h <= (1.0 - FILTER_MARGIN) * hj || f <= fj - FILTER_MARGIN * h;
+    f.is_finite() && beats((f0, h0)) && filter.iter().all(|&e| beats(e))
+}
+
 /// G = H + 2ρÃᵀÃ (row-major n×n).
 fn fill_g(g: &mut [f64; MAX_PARAMS * MAX_PARAMS], e: &Expansion, n: usize, m: usize, rho: f64) {
-    g[..n * n].copy_from_slice(&e.h[..n * n]);
+    with_const_dim!(n, fill_g_fixed, (g, e, m, rho))
+}
+
+fn fill_g_fixed<const N: usize>(
+    g: &mut [f64; MAX_PARAMS * MAX_PARAMS],
+    e: &Expansion,
+    m: usize,
+    rho: f64,
+) {
+    let g = &mut g[..N * N];
+    g.copy_from_slice(&e.h[..N * N]);
     if rho == 0.0 {
         return;
     }
-    for t in 0..m {
-        let a = &e.a[t];
-        for i in 0..n {
-            if a[i] == 0.0 {
-                continue;
-            }
+    for a in &e.a[..m] {
+        let a = &a[..N];
+        for i in 0..N {
             let ai = 2.0 * rho * a[i];
-            let row = &mut g[i * n..i * n + n];
-            for j in 0..n {
-                row[j] += ai * a[j];
+            for j in 0..N {
+                g[i * N + j] += ai * a[j];
             }
         }
     }

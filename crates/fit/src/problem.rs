@@ -96,23 +96,74 @@ impl HessianMatrix {
 /// triangle; the diagonal stores 1/L_jj); false if not positive definite
 /// (or not finite).
 pub(crate) fn cholesky(h: &[f64], n: usize, shift: f64, l: &mut [f64]) -> bool {
-    for j in 0..n {
-        let (upper, rest) = l.split_at_mut((j + 1) * n);
-        let row_j = &mut upper[j * n..];
-        let d = h[j * n + j] + shift - row_j[..j].iter().map(|v| v * v).sum::<f64>();
+    with_const_dim!(n, cholesky_fixed, (h, shift, 0.0, l))
+}
+
+/// Calls `$f::<N>$args` with the constant N equal to `$n` (0 to
+/// [`MAX_PARAMS`]; larger values are treated as 0, an empty system).
+/// Small dense kernels compiled for a constant size have no bounds checks
+/// and unrolled loops: several times faster than the same loops over a
+/// run-time size.
+macro_rules! with_const_dim {
+    ($n:expr, $f:ident, ($($arg:expr),*)) => {
+        match $n {
+            1 => $f::<1>($($arg),*),
+            2 => $f::<2>($($arg),*),
+            3 => $f::<3>($($arg),*),
+            4 => $f::<4>($($arg),*),
+            5 => $f::<5>($($arg),*),
+            6 => $f::<6>($($arg),*),
+            7 => $f::<7>($($arg),*),
+            8 => $f::<8>($($arg),*),
+            9 => $f::<9>($($arg),*),
+            10 => $f::<10>($($arg),*),
+            11 => $f::<11>($($arg),*),
+            12 => $f::<12>($($arg),*),
+            13 => $f::<13>($($arg),*),
+            14 => $f::<14>($($arg),*),
+            15 => $f::<15>($($arg),*),
+            16 => $f::<16>($($arg),*),
+            _ => $f::<0>($($arg),*),
+        }
+    };
+}
+pub(crate) use with_const_dim;
+
+/// [`cholesky`] of h + shift·I for N×N; with `floor` > 0 the modified
+/// factorisation of [`modified_cholesky`].
+fn cholesky_fixed<const N: usize>(h: &[f64], shift: f64, floor: f64, l: &mut [f64]) -> bool {
+    let h = &h[..N * N];
+    let l = &mut l[..N * N];
+    for j in 0..N {
+        let mut d = h[j * N + j] + shift;
+        for k in 0..j {
+            d -= l[j * N + k] * l[j * N + k];
+        }
+        if floor > 0.0 && d < floor && d.is_finite() {
+            d = d.abs().max(floor);
+        }
         if !(d > 0.0 && d.is_finite()) {
             return false;
         }
         let inv = 1.0 / d.sqrt();
-        row_j[j] = inv; // the diagonal holds 1/L_jj: solves multiply
-        let lj = &row_j[..j];
-        for (r, li) in rest.chunks_exact_mut(n).take(n - j - 1).enumerate() {
-            let i = j + 1 + r;
-            let v = h[i * n + j] - li[..j].iter().zip(lj).map(|(a, b)| a * b).sum::<f64>();
-            li[j] = v * inv;
+        l[j * N + j] = inv; // the diagonal holds 1/L_jj: solves multiply
+        for i in j + 1..N {
+            let mut v = h[i * N + j];
+            for k in 0..j {
+                v -= l[i * N + k] * l[j * N + k];
+            }
+            l[i * N + j] = v * inv;
         }
     }
     true
+}
+
+/// Modified Cholesky: like [`cholesky`], but a pivot d_j below
+/// `floor` (> 0) is replaced by max(|d_j|, floor), so the factor always
+/// exists (of H + E with E ≥ 0 diagonal, zero where H is comfortably
+/// positive definite). False only for non-finite input.
+pub(crate) fn modified_cholesky(h: &[f64], n: usize, floor: f64, l: &mut [f64]) -> bool {
+    with_const_dim!(n, cholesky_fixed, (h, 0.0, floor, l))
 }
 
 /// Solves (L Lᵀ) x = b in place for a factor from [`cholesky`].
@@ -123,21 +174,35 @@ pub(crate) fn cholesky_solve(l: &[f64], n: usize, x: &mut [f64]) {
 
 /// Solves L y = b in place for a factor from [`cholesky`].
 pub(crate) fn forward_solve(l: &[f64], n: usize, x: &mut [f64]) {
-    for i in 0..n {
-        let row = &l[i * n..i * n + i];
-        let s: f64 = row.iter().zip(x.iter()).map(|(a, b)| a * b).sum();
-        x[i] = (x[i] - s) * l[i * n + i];
+    with_const_dim!(n, forward_fixed, (l, x))
+}
+
+fn forward_fixed<const N: usize>(l: &[f64], x: &mut [f64]) {
+    let l = &l[..N * N];
+    let x = &mut x[..N];
+    for i in 0..N {
+        let mut s = x[i];
+        for k in 0..i {
+            s -= l[i * N + k] * x[k];
+        }
+        x[i] = s * l[i * N + i];
     }
 }
 
 /// Solves Lᵀ x = y in place for a factor from [`cholesky`].
 pub(crate) fn back_solve(l: &[f64], n: usize, x: &mut [f64]) {
-    for i in (0..n).rev() {
+    with_const_dim!(n, back_fixed, (l, x))
+}
+
+fn back_fixed<const N: usize>(l: &[f64], x: &mut [f64]) {
+    let l = &l[..N * N];
+    let x = &mut x[..N];
+    for i in (0..N).rev() {
         let mut s = x[i];
-        for k in i + 1..n {
-            s -= l[k * n + i] * x[k];
+        for k in i + 1..N {
+            s -= l[k * N + i] * x[k];
         }
-        x[i] = s * l[i * n + i];
+        x[i] = s * l[i * N + i];
     }
 }
 
