@@ -4,7 +4,7 @@
 use std::path::PathBuf;
 
 use quarry::assign::{BtagPolicy, SearchConfig};
-use quarry::csv::{BadReason, ErrorPolicy, EventReader, ReadOptions, Record, RowWriter};
+use quarry::csv::{BadReason, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, RowWriter};
 use quarry::event::Selection;
 use quarry::output::Row;
 use quarry::stream::{ordered_chunked_map, Shard};
@@ -61,10 +61,12 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
     b.build().map_err(|e| Failure::Usage(e.to_string()))
 }
 
-/// Every input, one after the other, as `(ordinal, record)` for the
-/// records of this shard. Under the stop policy the first bad record (in
-/// any shard, so that every shard of a job array stops alike) becomes an
-/// input failure.
+/// Every input, one after the other, as `(ordinal, raw event, kept)`:
+/// events grouped but not parsed, so that parsing runs on the workers.
+/// `kept` says whether the event belongs to this shard; events of other
+/// shards pass too (unparsed under the skip policy) because under the stop
+/// policy the first bad event in any shard stops the run, so that every
+/// shard of a job array stops alike.
 struct Records<'a> {
     inputs: std::slice::Iter<'a, PathBuf>,
     current: Option<EventReader>,
@@ -73,8 +75,6 @@ struct Records<'a> {
     next_ordinal: u64,
     warned: usize,
     quiet: bool,
-    /// Records read, all shards.
-    read: u64,
 }
 
 impl Records<'_> {
@@ -91,7 +91,7 @@ impl Records<'_> {
 }
 
 impl Iterator for Records<'_> {
-    type Item = Result<(u64, Record), Failure>;
+    type Item = Result<(u64, RawEvent, bool), Failure>;
 
     fn next(&mut self) -> Option<Self::Item> {
         loop {
@@ -107,33 +107,58 @@ impl Iterator for Records<'_> {
                 }
             }
             let reader = self.current.as_mut()?;
-            match reader.next() {
+            match reader.next_raw() {
                 None => {
                     self.flush_warnings();
                     self.current = None;
                 }
                 Some(Err(e)) => return Some(Err(Failure::Input(e.to_string()))),
-                Some(Ok(record)) => {
+                Some(Ok(raw)) => {
                     let ordinal = self.next_ordinal;
                     self.next_ordinal += 1;
-                    self.read += 1;
-                    if let (Record::Bad(bad), ErrorPolicy::Stop) = (&record, self.options.policy) {
-                        let id = match bad.id {
-                            Some(id) => format!("event {id}"),
-                            None => format!("event '{}'", bad.raw_id),
-                        };
-                        return Some(Err(Failure::Input(format!(
-                            "{} ({id}; stopped at the first bad event, use --on-bad skip to go on)",
-                            bad.error
-                        ))));
-                    }
-                    if self.shard.keeps(ordinal) {
-                        return Some(Ok((ordinal, record)));
-                    }
+                    return Some(Ok((ordinal, raw, self.shard.keeps(ordinal))));
                 }
             }
         }
     }
+}
+
+/// What a worker makes of one raw event.
+enum Outcome {
+    /// The event's rows, and the reader's reason if it was rejected.
+    Rows(Vec<Row>, Option<BadReason>),
+    /// Another shard's event that needs no output.
+    OtherShard,
+    /// A bad event under the stop policy: the run ends with this message.
+    Stop(String),
+}
+
+/// Parses a raw event (on a worker thread) and reconstructs it.
+fn outcome_of(
+    worker: &mut quarry::Worker<'_>,
+    pipeline: &Pipeline,
+    policy: ErrorPolicy,
+    (ordinal, raw, kept): (u64, RawEvent, bool),
+) -> Outcome {
+    if !kept && policy == ErrorPolicy::Skip {
+        return Outcome::OtherShard;
+    }
+    let record = raw.parse();
+    if let (Record::Bad(bad), ErrorPolicy::Stop) = (&record, policy) {
+        let id = match bad.id {
+            Some(id) => format!("event {id}"),
+            None => format!("event '{}'", bad.raw_id),
+        };
+        return Outcome::Stop(format!(
+            "{} ({id}; stopped at the first bad event, use --on-bad skip to go on)",
+            bad.error
+        ));
+    }
+    if !kept {
+        return Outcome::OtherShard;
+    }
+    let (rows, bad) = rows_of(worker, pipeline, ordinal, record);
+    Outcome::Rows(rows, bad)
 }
 
 /// The rows of one record, and the reader's reason if it was rejected.
@@ -205,8 +230,8 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
         next_ordinal: 0,
         warned: 0,
         quiet: args.quiet,
-        read: 0,
     };
+    let mut read = 0u64;
     let mut writer: RowWriter<Row> =
         RowWriter::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
     let mut summary = Summary::start();
@@ -216,8 +241,14 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             &mut records,
             args.chunk_size,
             || pipeline.worker(),
-            |worker, (ordinal, record)| rows_of(worker, &pipeline, ordinal, record),
-            |(rows, bad)| {
+            |worker, item| outcome_of(worker, &pipeline, policy, item),
+            |outcome| {
+                read += 1;
+                let (rows, bad) = match outcome {
+                    Outcome::Rows(rows, bad) => (rows, bad),
+                    Outcome::OtherShard => return Ok(()),
+                    Outcome::Stop(message) => return Err(Failure::Input(message)),
+                };
                 summary.processed += 1;
                 if let Some(reason) = bad {
                     *summary.bad_by_reason.entry(reason.as_str()).or_default() += 1;
@@ -235,7 +266,7 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
         )
     });
     bar.finish_and_clear();
-    summary.read = records.read;
+    summary.read = read;
     let names: Vec<String> = pipeline
         .hypotheses()
         .iter()

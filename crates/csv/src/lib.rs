@@ -24,7 +24,7 @@ mod writer;
 pub use error::{BadEvent, BadReason, CsvError, FieldError};
 pub use quarry_event::Event;
 pub use reader::{
-    ErrorPolicy, EventReader, ReadOptions, ReadSummary, Record, DEFAULT_MAX_OBJECTS,
+    ErrorPolicy, EventReader, RawEvent, ReadOptions, ReadSummary, Record, DEFAULT_MAX_OBJECTS,
     ENERGY_ROUNDING_TOLERANCE, MAX_ABS_ETA, MAX_ABS_PHI, MAX_LINE_BYTES, STDIN_NAME,
 };
 pub use writer::{format_f64, EventWriter, RowWriter, EVENT_COLUMNS};

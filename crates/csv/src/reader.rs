@@ -6,6 +6,7 @@ use std::fmt;
 use std::fs::File;
 use std::io::{self, BufRead, BufReader, Cursor, Read};
 use std::path::Path;
+use std::sync::Arc;
 
 use flate2::read::MultiGzDecoder;
 use quarry_event::{Event, FatJet, Flavour, Jet, Lepton, Met, Truth};
@@ -224,6 +225,194 @@ struct Block {
     weight: Option<(f64, u64)>,
 }
 
+/// What the reader needs to parse rows, shared with every [`RawEvent`].
+#[derive(Debug)]
+struct Parser {
+    cols: Columns,
+    name: String,
+    options: ReadOptions,
+}
+
+/// One row kept by the grouping pass for parsing later, in file order.
+enum Pending {
+    /// A row to parse: its line number and where its text ends in
+    /// [`RawEvent::text`].
+    Row { line: u64, end: usize },
+    /// A row that is not valid CSV (or too long).
+    Syntax { line: u64, message: String },
+    /// The input broke off after the rows before this.
+    Truncated { line: u64 },
+}
+
+/// Bytes of row text a [`RawEvent`] keeps unparsed; beyond this the reader
+/// parses what it holds at once, so one event's raw text stays bounded.
+const RAW_TEXT_BUDGET: usize = 1 << 20;
+
+/// One event's rows, grouped and checked for event-level errors (bad or
+/// repeated id, CSV syntax) but not yet parsed: the output of
+/// [`EventReader::next_raw`]. Parsing with [`RawEvent::parse`] needs no
+/// reader, so raw events can be parsed on other threads, in any order,
+/// while the reader goes on grouping; the record is the same as the
+/// iterator would have yielded.
+pub struct RawEvent {
+    parser: Arc<Parser>,
+    block: Block,
+    text: Vec<u8>,
+    pending: Vec<Pending>,
+    /// Rows past the point where the event is certainly bad: only counted.
+    extra_rows: u64,
+}
+
+impl fmt::Debug for RawEvent {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.debug_struct("RawEvent")
+            .field("id", &self.id())
+            .field("first_line", &self.block.first_line)
+            .finish_non_exhaustive()
+    }
+}
+
+impl RawEvent {
+    /// The event id, if the `event` field parsed.
+    pub fn id(&self) -> Option<u64> {
+        match self.block.key {
+            Key::Id(id) => Some(id),
+            Key::Raw(_) => None,
+        }
+    }
+
+    /// Line of the event's first row.
+    pub fn first_line(&self) -> u64 {
+        self.block.first_line
+    }
+
+    /// Parses the rows into the event's [`Record`]: exactly the record that
+    /// iterating the [`EventReader`] gives for this event.
+    pub fn parse(mut self) -> Record {
+        self.parse_pending();
+        let parser = self.parser;
+        let mut block = self.block;
+        block.rows += self.extra_rows;
+        match block.error.take() {
+            None => {
+                let mut event = block.event;
+                event.weight = block.weight.map_or(1.0, |(w, _)| w);
+                Record::Good(event)
+            }
+            Some(error) => {
+                drop(parser);
+                Record::Bad(BadEvent {
+                    id: match block.key {
+                        Key::Id(id) => Some(id),
+                        Key::Raw(_) => None,
+                    },
+                    raw_id: block.raw_id,
+                    first_line: block.first_line,
+                    rows: block.rows,
+                    error,
+                })
+            }
+        }
+    }
+
+    /// Keeps one row of text for parsing later.
+    fn push_row(&mut self, line: u64, text: &[u8]) {
+        let max = self.parser.options.max_objects_per_event;
+        if self.block.error.is_some() || self.pending.len() + self.block.rows as usize > max {
+            // Row max+1 makes the event bad at the latest, so later rows
+            // are only counted.
+            self.extra_rows += 1;
+            return;
+        }
+        self.text.extend_from_slice(text);
+        self.pending.push(Pending::Row {
+            line,
+            end: self.text.len(),
+        });
+        if self.text.len() > RAW_TEXT_BUDGET {
+            self.parse_pending();
+        }
+    }
+
+    fn push_syntax(&mut self, line: u64, message: String) {
+        let max = self.parser.options.max_objects_per_event;
+        if self.block.error.is_some() || self.pending.len() + self.block.rows as usize > max {
+            self.extra_rows += 1;
+            return;
+        }
+        self.pending.push(Pending::Syntax { line, message });
+    }
+
+    /// Parses the rows kept so far into the block, in file order.
+    fn parse_pending(&mut self) {
+        let parser = &*self.parser;
+        let block = &mut self.block;
+        let mut row = Row {
+            spans: Vec::with_capacity(parser.cols.names.len()),
+            ..Row::default()
+        };
+        if block.event.jets.capacity() == 0 {
+            // Most rows are jets: one allocation instead of a growth chain.
+            block.event.jets.reserve(self.pending.len());
+        }
+        let mut start = 0;
+        for p in self.pending.drain(..) {
+            match p {
+                Pending::Row { line, end } => {
+                    let bytes = &self.text[start..end];
+                    start = end;
+                    if block.error.is_some() {
+                        block.rows += 1;
+                        continue;
+                    }
+                    match row.split(bytes) {
+                        Ok(()) => add_row(parser, &row, bytes, line, block),
+                        Err(message) => {
+                            block.rows += 1;
+                            block.error = Some(parser.row_error(
+                                line,
+                                BadReason::Syntax,
+                                message.to_string(),
+                            ));
+                        }
+                    }
+                }
+                Pending::Syntax { line, message } => {
+                    block.rows += 1;
+                    if block.error.is_none() {
+                        block.error = Some(parser.row_error(line, BadReason::Syntax, message));
+                    }
+                }
+                Pending::Truncated { line } => {
+                    // The rows read so far may be incomplete: never pass
+                    // them on as a good event.
+                    if block.error.is_none() {
+                        block.error = Some(parser.row_error(
+                            line,
+                            BadReason::Truncated,
+                            "the input broke off while this event was being read".into(),
+                        ));
+                    }
+                }
+            }
+        }
+        self.text.clear();
+    }
+}
+
+impl Parser {
+    fn row_error(&self, line: u64, reason: BadReason, message: String) -> FieldError {
+        FieldError {
+            file: self.name.clone(),
+            line,
+            column: None,
+            value: None,
+            reason,
+            message,
+        }
+    }
+}
+
 /// Streaming reader of quarry long-form CSV events.
 ///
 /// Iterating yields `Ok(Record)` for every contiguous block of rows that share
@@ -255,8 +444,9 @@ pub struct EventReader {
     gz: bool,
     cols: Columns,
     options: ReadOptions,
+    parser: Arc<Parser>,
     row: Row,
-    current: Option<Block>,
+    current: Option<RawEvent>,
     seen: HashSet<u64>,
     summary: ReadSummary,
     warnings: Vec<String>,
@@ -295,7 +485,7 @@ impl EventReader {
     ) -> Result<EventReader, CsvError> {
         let (input, gz) = sniff_gzip(Box::new(reader), name)?;
         let mut lines = Lines {
-            input: BufReader::new(input),
+            input: BufReader::with_capacity(1 << 16, input),
             buf: Vec::new(),
             line_no: 0,
         };
@@ -326,11 +516,12 @@ impl EventReader {
             }
             break lines.line_no;
         };
-        let (cols, unknown) = parse_header(&header).map_err(|message| CsvError::Header {
-            file: name.clone(),
-            line,
-            message,
-        })?;
+        let (cols, unknown) =
+            parse_header(&header, &lines.buf).map_err(|message| CsvError::Header {
+                file: name.clone(),
+                line,
+                message,
+            })?;
         let mut warnings = Vec::new();
         if !unknown.is_empty() {
             warnings.push(format!(
@@ -342,12 +533,18 @@ impl EventReader {
                     .join(", ")
             ));
         }
+        let parser = Arc::new(Parser {
+            cols: cols.clone(),
+            name: name.clone(),
+            options,
+        });
         Ok(EventReader {
             lines,
             name,
             gz,
             cols,
             options,
+            parser,
             row: Row::default(),
             current: None,
             seen: HashSet::new(),
@@ -379,43 +576,28 @@ impl EventReader {
         &self.summary
     }
 
-    /// Turns a finished block into its record and counts it.
-    fn finish(&mut self, block: Block) -> Record {
-        self.summary.events += 1;
-        match block.error {
-            None => {
-                self.summary.good += 1;
-                let mut event = block.event;
-                event.weight = block.weight.map_or(1.0, |(w, _)| w);
-                Record::Good(event)
-            }
-            Some(error) => {
+    /// Counts a parsed record and applies the error policy.
+    fn account(&mut self, record: &Record) {
+        match record {
+            Record::Good(_) => self.summary.good += 1,
+            Record::Bad(bad) => {
                 self.summary.bad += 1;
-                *self.summary.bad_by_reason.entry(error.reason).or_insert(0) += 1;
+                *self.summary.bad_by_reason.entry(bad.reason()).or_insert(0) += 1;
                 if self.options.policy == ErrorPolicy::Stop {
                     self.summary.stopped_at_bad_event = true;
                     self.done = true;
                 }
-                Record::Bad(BadEvent {
-                    id: match block.key {
-                        Key::Id(id) => Some(id),
-                        Key::Raw(_) => None,
-                    },
-                    raw_id: block.raw_id,
-                    first_line: block.first_line,
-                    rows: block.rows,
-                    error,
-                })
             }
         }
     }
 
-    fn start_block(&mut self, key: Key, line: u64) -> Block {
-        let raw_id = self
-            .row
-            .get(self.cols.event)
-            .map(|b| String::from_utf8_lossy(b).into_owned())
-            .unwrap_or_default();
+    /// Hands out a grouped event and counts it.
+    fn yield_raw(&mut self, raw: RawEvent) -> RawEvent {
+        self.summary.events += 1;
+        raw
+    }
+
+    fn start_block(&mut self, key: Key, raw_id: String, line: u64) -> RawEvent {
         let mut error = None;
         match &key {
             Key::Id(id) => {
@@ -444,18 +626,26 @@ impl EventReader {
                 ));
             }
         }
-        Block {
-            event: Event::new(match key {
-                Key::Id(id) => id,
-                Key::Raw(_) => 0,
-            }),
-            key,
-            raw_id,
-            first_line: line,
-            rows: 0,
-            error,
-            met_line: None,
-            weight: None,
+        RawEvent {
+            parser: Arc::clone(&self.parser),
+            block: Block {
+                event: Event::new(match key {
+                    Key::Id(id) => id,
+                    Key::Raw(_) => 0,
+                }),
+                key,
+                raw_id,
+                first_line: line,
+                rows: 0,
+                error,
+                met_line: None,
+                weight: None,
+            },
+            // Sized for a typical event (~8 rows of ~90 bytes) so that
+            // grouping rarely reallocates.
+            text: Vec::with_capacity(1024),
+            pending: Vec::with_capacity(16),
+            extra_rows: 0,
         }
     }
 
@@ -477,24 +667,32 @@ impl EventReader {
         }
     }
 
-    fn key_of_row(&self) -> Key {
-        match self.row.get(self.cols.event) {
-            None => Key::Raw(Vec::new()),
-            Some(b) => match std::str::from_utf8(b)
-                .ok()
-                .and_then(|s| s.parse::<u64>().ok())
-            {
-                Some(id) => Key::Id(id),
-                None => Key::Raw(b.to_vec()),
-            },
-        }
-    }
-}
-
-impl Iterator for EventReader {
-    type Item = Result<Record, CsvError>;
-
-    fn next(&mut self) -> Option<Self::Item> {
+    /// Groups the next event's rows without parsing them: the cheap,
+    /// sequential half of reading. It finds where each event ends, checks
+    /// the event id (unsigned integer, not seen before) and the CSV syntax,
+    /// and keeps exact line numbers; [`RawEvent::parse`] does the rest,
+    /// possibly on another thread. Returns `None` at the end of input, and
+    /// after a broken stream its `Err` once, like the iterator.
+    ///
+    /// The error policy and the summary's good/bad counts belong to the
+    /// iterator: a caller of `next_raw` sees every event and applies its
+    /// own policy to the parsed records. Do not mix the two on one reader.
+    ///
+    /// ```
+    /// use quarry_csv::{EventReader, ReadOptions, Record};
+    /// let text = "event,kind,pt,eta,phi,mass\n7,jet,50,0.1,0.2,5\n7,met,30,,1.5,\n8,jet,x,0,0,0\n";
+    /// let mut reader = EventReader::from_reader(text.as_bytes(), "e.csv", ReadOptions::default()).unwrap();
+    /// let mut raw = Vec::new();
+    /// while let Some(r) = reader.next_raw() {
+    ///     raw.push(r.unwrap());
+    /// }
+    /// assert_eq!((raw[0].id(), raw[1].first_line()), (Some(7), 4));
+    /// // Parsing may happen anywhere, e.g. on worker threads.
+    /// let records: Vec<Record> = raw.into_iter().map(|r| r.parse()).collect();
+    /// assert!(matches!(&records[0], Record::Good(e) if e.jets.len() == 1));
+    /// assert!(matches!(&records[1], Record::Bad(b) if b.error.line == 4));
+    /// ```
+    pub fn next_raw(&mut self) -> Option<Result<RawEvent, CsvError>> {
         loop {
             if self.done {
                 return self.fatal.take().map(Err);
@@ -504,7 +702,7 @@ impl Iterator for EventReader {
                 Ok(None) => {
                     self.done = true;
                     if let Some(b) = self.current.take() {
-                        return Some(Ok(self.finish(b)));
+                        return Some(Ok(self.yield_raw(b)));
                     }
                     if self.summary.events == 0 {
                         self.warnings
@@ -519,20 +717,8 @@ impl Iterator for EventReader {
                     self.fatal = Some(fatal);
                     self.done = true;
                     if let Some(mut b) = self.current.take() {
-                        // The rows read so far may be incomplete: never pass
-                        // them on as a good event.
-                        if b.error.is_none() {
-                            b.error = Some(FieldError {
-                                file: self.name.clone(),
-                                line,
-                                column: None,
-                                value: None,
-                                reason: BadReason::Truncated,
-                                message: "the input broke off while this event was being read"
-                                    .into(),
-                            });
-                        }
-                        return Some(Ok(self.finish(b)));
+                        b.pending.push(Pending::Truncated { line });
+                        return Some(Ok(self.yield_raw(b)));
                     }
                     continue;
                 }
@@ -542,43 +728,84 @@ impl Iterator for EventReader {
             }
             let line = self.lines.line_no;
             self.summary.rows += 1;
-            let syntax = self.row.split(&self.lines.buf).err().map(str::to_string);
-            let syntax = if too_long {
-                Some(format!("line longer than {MAX_LINE_BYTES} bytes"))
+            let buf = &self.lines.buf;
+            // Only a line with quotes (or cut short) needs the full split
+            // here; otherwise the event field is found by counting commas.
+            let (field, syntax) = if too_long || buf.contains(&b'"') {
+                let syntax = self.row.split(buf).err().map(str::to_string);
+                let syntax = if too_long {
+                    Some(format!("line longer than {MAX_LINE_BYTES} bytes"))
+                } else {
+                    syntax
+                };
+                (self.row.get(buf, self.cols.event), syntax)
             } else {
-                syntax
+                (plain_field(buf, self.cols.event), None)
             };
-            let key = self.key_of_row();
-            let same = self.current.as_ref().is_some_and(|b| b.key == key);
+            let key = key_of(field);
+            let same = self.current.as_ref().is_some_and(|b| b.block.key == key);
+            let raw_id = (!same).then(|| {
+                field
+                    .map(|b| String::from_utf8_lossy(b).into_owned())
+                    .unwrap_or_default()
+            });
             let finished = if same { None } else { self.current.take() };
-            if !same {
-                let block = self.start_block(key, line);
+            if let Some(raw_id) = raw_id {
+                let block = self.start_block(key, raw_id, line);
                 self.current = Some(block);
             }
-            let mut block = self.current.take().expect("a block is open");
-            if let (Some(message), None) = (syntax, &block.error) {
-                block.rows += 1;
-                block.error = Some(FieldError {
-                    file: self.name.clone(),
-                    line,
-                    column: None,
-                    value: None,
-                    reason: BadReason::Syntax,
-                    message,
-                });
-            } else {
-                add_row(
-                    &self.cols,
-                    &self.name,
-                    &self.options,
-                    &self.row,
-                    line,
-                    &mut block,
-                );
+            let current = self.current.as_mut().expect("a block is open");
+            match syntax {
+                Some(message) => current.push_syntax(line, message),
+                None => current.push_row(line, &self.lines.buf),
             }
-            self.current = Some(block);
             if let Some(b) = finished {
-                return Some(Ok(self.finish(b)));
+                return Some(Ok(self.yield_raw(b)));
+            }
+        }
+    }
+}
+
+/// The `col`-th comma-separated field of a line without quotes, trimmed of
+/// spaces and tabs as [`Row::split`] does.
+fn plain_field(line: &[u8], col: usize) -> Option<&[u8]> {
+    line.split(|&b| b == b',').nth(col).map(trim_blanks)
+}
+
+fn trim_blanks(mut field: &[u8]) -> &[u8] {
+    while let [b' ' | b'\t', rest @ ..] = field {
+        field = rest;
+    }
+    while let [rest @ .., b' ' | b'\t'] = field {
+        field = rest;
+    }
+    field
+}
+
+/// The grouping key of a row from its `event` field.
+fn key_of(field: Option<&[u8]>) -> Key {
+    match field {
+        None => Key::Raw(Vec::new()),
+        Some(b) => match std::str::from_utf8(b)
+            .ok()
+            .and_then(|s| s.parse::<u64>().ok())
+        {
+            Some(id) => Key::Id(id),
+            None => Key::Raw(b.to_vec()),
+        },
+    }
+}
+
+impl Iterator for EventReader {
+    type Item = Result<Record, CsvError>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        match self.next_raw()? {
+            Err(e) => Some(Err(e)),
+            Ok(raw) => {
+                let record = raw.parse();
+                self.account(&record);
+                Some(Ok(record))
             }
         }
     }
@@ -586,9 +813,9 @@ impl Iterator for EventReader {
 
 /// Checks the header: required columns present once, cov columns all or
 /// none. Returns the columns and the unknown names.
-fn parse_header(header: &Row) -> Result<(Columns, Vec<String>), String> {
+fn parse_header(header: &Row, line: &[u8]) -> Result<(Columns, Vec<String>), String> {
     let mut names = Vec::with_capacity(header.len());
-    for (i, raw) in header.fields().enumerate() {
+    for (i, raw) in header.fields(line).enumerate() {
         let mut name = std::str::from_utf8(raw)
             .map_err(|_| format!("column {} name is not valid UTF-8", i + 1))?;
         if i == 0 {
@@ -663,25 +890,28 @@ fn parse_header(header: &Row) -> Result<(Columns, Vec<String>), String> {
 
 /// Parses one row into the block, recording the first error found. Rows of
 /// a block that already has an error are only counted.
-fn add_row(
-    cols: &Columns,
-    name: &str,
-    options: &ReadOptions,
-    row: &Row,
-    line: u64,
-    block: &mut Block,
-) {
+fn add_row(parser: &Parser, row: &Row, bytes: &[u8], line: u64, block: &mut Block) {
     block.rows += 1;
     if block.error.is_some() {
         return;
     }
+    // One UTF-8 check for the whole line: fields of an unquoted valid line
+    // are then `str` slices at ASCII comma positions, with no per-field
+    // check. Other lines take the per-field path, which names the column.
+    let text = if row.copied {
+        None
+    } else {
+        std::str::from_utf8(bytes).ok()
+    };
     let ctx = RowCtx {
-        cols,
-        name,
+        cols: &parser.cols,
+        name: &parser.name,
         row,
+        bytes,
+        text,
         line,
     };
-    if let Err(e) = parse_row(&ctx, options, block) {
+    if let Err(e) = parse_row(&ctx, &parser.options, block) {
         block.error = Some(e);
     }
 }
@@ -690,6 +920,10 @@ struct RowCtx<'a> {
     cols: &'a Columns,
     name: &'a str,
     row: &'a Row,
+    /// The line's bytes.
+    bytes: &'a [u8],
+    /// The line as text, when it is valid UTF-8 and has no quoted field.
+    text: Option<&'a str>,
     line: u64,
 }
 
@@ -723,7 +957,12 @@ impl RowCtx<'_> {
     /// The field's text ("" when the column is absent from the header).
     fn text(&self, col: Option<usize>) -> Result<&str, FieldError> {
         let Some(c) = col else { return Ok("") };
-        let bytes = self.row.get(c).unwrap_or(b"");
+        if let (Some(text), Some(&(a, b))) = (self.text, self.row.spans.get(c)) {
+            if let Some(field) = text.get(a..b) {
+                return Ok(field);
+            }
+        }
+        let bytes = self.row.get(self.bytes, c).unwrap_or(b"");
         std::str::from_utf8(bytes).map_err(|_| {
             self.err(
                 c,
@@ -1147,12 +1386,16 @@ fn is_blank_or_comment(line: &[u8]) -> bool {
     }
 }
 
-/// One line split into fields, stored contiguously without per-field
-/// allocation.
+/// One line split into fields: byte ranges into the line itself, or, when
+/// the line has a quoted field, into an unquoted copy.
 #[derive(Default)]
 struct Row {
+    /// Unquoted field contents, used only when `copied`.
     bytes: Vec<u8>,
-    ends: Vec<usize>,
+    /// `(start, end)` of each field in the line (or in `bytes`).
+    spans: Vec<(usize, usize)>,
+    /// Whether the spans index `bytes` rather than the line.
+    copied: bool,
 }
 
 impl Row {
@@ -1161,11 +1404,41 @@ impl Row {
     /// quote). On a syntax error the fields read so far are kept.
     fn split(&mut self, line: &[u8]) -> Result<(), &'static str> {
         self.bytes.clear();
-        self.ends.clear();
+        self.spans.clear();
         let blank = |b: u8| b == b' ' || b == b'\t';
         let n = line.len();
+        // The common case, a line without quotes: one pass that only
+        // records field boundaries, no copy.
+        self.copied = false;
+        let trimmed = |mut a: usize, mut b: usize| {
+            while a < b && blank(line[a]) {
+                a += 1;
+            }
+            while b > a && blank(line[b - 1]) {
+                b -= 1;
+            }
+            (a, b)
+        };
+        let mut start = 0;
+        let mut quoted = false;
+        for (i, &c) in line.iter().enumerate() {
+            if c == b',' {
+                self.spans.push(trimmed(start, i));
+                start = i + 1;
+            } else if c == b'"' {
+                quoted = true;
+                break;
+            }
+        }
+        if !quoted {
+            self.spans.push(trimmed(start, n));
+            return Ok(());
+        }
+        self.spans.clear();
+        self.copied = true;
         let mut i = 0;
         loop {
+            let field_start = self.bytes.len();
             while i < n && blank(line[i]) {
                 i += 1;
             }
@@ -1205,7 +1478,7 @@ impl Row {
                 }
                 self.bytes.extend_from_slice(&line[start..end]);
             }
-            self.ends.push(self.bytes.len());
+            self.spans.push((field_start, self.bytes.len()));
             if i >= n {
                 return Ok(());
             }
@@ -1214,16 +1487,20 @@ impl Row {
     }
 
     fn len(&self) -> usize {
-        self.ends.len()
+        self.spans.len()
     }
 
-    fn get(&self, i: usize) -> Option<&[u8]> {
-        let end = *self.ends.get(i)?;
-        let start = if i == 0 { 0 } else { self.ends[i - 1] };
-        Some(&self.bytes[start..end])
+    /// Field `i` of `line` (the line last split).
+    fn get<'a>(&'a self, line: &'a [u8], i: usize) -> Option<&'a [u8]> {
+        let &(a, b) = self.spans.get(i)?;
+        Some(if self.copied {
+            &self.bytes[a..b]
+        } else {
+            &line[a..b]
+        })
     }
 
-    fn fields(&self) -> impl Iterator<Item = &[u8]> {
-        (0..self.len()).filter_map(|i| self.get(i))
+    fn fields<'a>(&'a self, line: &'a [u8]) -> impl Iterator<Item = &'a [u8]> {
+        (0..self.len()).filter_map(move |i| self.get(line, i))
     }
 }
