@@ -6,7 +6,9 @@
 //!
 //! Run: `cargo run --release -p quarry-assign --example search_workload -- bw`
 //! (cases: `bw`, `tw8`, `tw10`, `tw10-no-btag`; add `exhaustive` to disable
-//! pruning; add `gen` to only generate the events, for subtracting).
+//! pruning; add `gen` to only generate the events, for subtracting; add
+//! `repeat N` to also time N more passes by CPU time; `orders` prints each
+//! preset's fill order).
 
 #[path = "support/bench_events.rs"]
 mod bench_events;
@@ -45,6 +47,28 @@ fn main() {
         ..SearchConfig::default()
     };
     let mut s = Searcher::new(&h, cfg).expect("config");
+    // `repeat N`: search the events N times more, timed by the CPU time
+    // this process gets (its share on a loaded machine is irrelevant).
+    let repeat: usize = args
+        .iter()
+        .position(|a| a == "repeat")
+        .and_then(|i| args.get(i + 1))
+        .and_then(|n| n.parse().ok())
+        .unwrap_or(0);
+    if repeat > 0 {
+        let cpu0 = cpu_seconds();
+        for _ in 0..repeat {
+            for e in events {
+                black_box(s.search(black_box(e)));
+            }
+        }
+        let cpu = cpu_seconds() - cpu0;
+        let n = (repeat * events.len()) as f64;
+        println!(
+            "{case} prune={prune}: {:.0} events per CPU second ({n} searches in {cpu:.3} s CPU)",
+            n / cpu
+        );
+    }
     let (mut complete, mut partial, mut chi2_sum) = (0u64, 0u64, 0.0);
     for e in events {
         let out = s.search(black_box(e));
@@ -61,7 +85,16 @@ fn main() {
     );
 }
 
-#[allow(dead_code)]
+/// User + system CPU time of this process, from `/proc/self/stat` (Linux;
+/// clock ticks of 1/100 s there), or 0 where unavailable.
+fn cpu_seconds() -> f64 {
+    let stat = std::fs::read_to_string("/proc/self/stat").unwrap_or_default();
+    let after = stat.rsplit(')').next().unwrap_or("");
+    let f: Vec<&str> = after.split_whitespace().collect();
+    let tick = |i: usize| f.get(i).and_then(|x| x.parse::<f64>().ok()).unwrap_or(0.0);
+    (tick(11) + tick(12)) / 100.0
+}
+
 fn print_orders() {
     for name in presets::names() {
         let h = presets::get(name).unwrap();

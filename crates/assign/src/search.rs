@@ -547,10 +547,9 @@ impl ConOp {
 ///
 /// The subtree below `depth` then depends on the rest of the assignment only
 /// through the closed mass and the objects already used. So every filling of
-/// the open roles is listed once per event and per choice of the open side's
-/// roles filled earlier (its *key*), by replaying the search's own steps
-/// (same sums, same terms, bit for bit), and sorted by the open composite's
-/// mass. Below `depth` the search then walks this list outwards from the
+/// the open roles is listed once per event, by replaying the search's own
+/// steps (same sums, same terms, bit for bit), and sorted by the open
+/// composite's mass. Below `depth` the search then walks this list outwards from the
 /// closed mass instead of descending: on each side the equal-mass term does
 /// not decrease with the distance between the masses and every other term is
 /// ≥ 0, so a side ends once `running χ² + equal-mass term` exceeds the K-th
@@ -563,10 +562,10 @@ struct Join {
     eq: ConOp,
     closed: usize,
     open: usize,
-    /// Roles filled at or before `depth` that the list depends on (its key).
-    fixed: Vec<usize>,
-    /// The steps after `depth` (all of them), in fill order.
+    /// The steps after `depth` (all of them), in fill order, and their
+    /// roles.
     open_steps: Vec<usize>,
+    open_roles: Vec<usize>,
     /// Additions to the running χ² per filling, in the search's order: per
     /// open step its b-tag term, then its constraints' terms.
     n_incr: usize,
@@ -580,8 +579,18 @@ struct Join {
 /// every event, which pays off only while it is short.
 const MAX_JOIN_COST: f64 = 64.0;
 
+/// What a walk over a join's list needs from the search.
+struct JoinWalk {
+    /// Running χ² at the join's step.
+    v: f64,
+    m_closed: f64,
+    used_jets: u64,
+    used_leps: u32,
+    n_roles: usize,
+}
+
 /// Most fillings in a join's list; past this the search descends as usual
-/// for that key (exact either way).
+/// for that event (exact either way).
 const MAX_JOIN_ENTRIES: usize = 4096;
 
 /// One filling of a join's open roles.
@@ -589,24 +598,24 @@ const MAX_JOIN_ENTRIES: usize = 4096;
 struct JoinEntry {
     /// The open composite's mass.
     mass: f64,
-    jets: u64,
-    leps: u64,
-    /// Objects of the open steps, in step order.
-    objs: [u8; MAX_ROLES],
-    /// Start of this filling's additions in [`JoinList::incr`].
-    at: usize,
-    /// Their sum, leaving out the equal-mass term.
+    /// The sum of its additions, leaving out the equal-mass term.
     rest: f64,
+    jets: u64,
+    leps: u32,
+    /// Which filling: its objects are `JoinList::objs[id]`, its additions
+    /// start at `JoinList::incr[id × Join::n_incr]`.
+    id: u32,
 }
 
 /// A join's list for the current event and key.
 #[derive(Clone, Debug, Default)]
 struct JoinList {
     entries: Vec<JoinEntry>,
+    /// Objects of the open steps per filling, in step order.
+    objs: Vec<[u8; MAX_ROLES]>,
     incr: Vec<f64>,
-    /// Search number and key the list was built for.
+    /// Number of the search the list was built for.
     stamp: u64,
-    key: [u8; MAX_ROLES],
     /// Too many fillings: no join for this key.
     overflow: bool,
 }
@@ -615,6 +624,8 @@ struct JoinList {
 #[derive(Clone, Debug)]
 struct Plan {
     steps: Vec<Step>,
+    /// An empty result with the hypothesis's sizes and leaf masks filled.
+    template: RankedAssignment,
     comp_ops: Vec<CompOp>,
     con_ops: Vec<ConOp>,
     joins: Vec<Join>,
@@ -905,8 +916,24 @@ impl Plan {
                 steps[la.depth].join = Some(i);
             }
         }
+        let mut template = RankedAssignment {
+            chi2: 0.0,
+            btag_chi2: 0.0,
+            n_roles: n as u8,
+            n_composites: comps.len() as u8,
+            n_constraints: h.constraints().len() as u8,
+            objects: [ObjectRef::Empty; MAX_ROLES],
+            composite_p4: [FourMomentum::ZERO; MAX_COMPOSITES],
+            leaf_masks: [0; MAX_COMPOSITES],
+            terms: [0.0; MAX_CONSTRAINTS],
+            neutrino: None,
+        };
+        for (c, comp) in comps.iter().enumerate() {
+            template.leaf_masks[c] = comp.leaf_mask;
+        }
         Plan {
             steps,
+            template,
             comp_ops,
             con_ops,
             joins,
@@ -949,9 +976,12 @@ impl Plan {
             let depth = comp_close[closed];
             let open_mask = comps[open].leaf_mask;
             let open_steps: Vec<usize> = (depth + 1..steps.len()).collect();
-            let mut fixed: Vec<usize> = (0..roles.len())
-                .filter(|&r| open_mask & (1 << r) != 0 && depth_of(r) <= depth)
-                .collect();
+            // The list must depend on no earlier role: it is built once per
+            // event (a list rebuilt within the search costs more than it
+            // saves).
+            if (0..roles.len()).any(|r| open_mask & (1 << r) != 0 && depth_of(r) <= depth) {
+                continue;
+            }
             let mut n_incr = 0;
             let mut eq_slot = usize::MAX;
             for &d in &open_steps {
@@ -965,10 +995,7 @@ impl Plan {
                 match st.kind {
                     StepKind::LargeJet { .. } => continue 'constraints,
                     StepKind::Neutrino { lepton } if open_mask & (1 << lepton) == 0 => {
-                        if depth_of(lepton) > depth {
-                            continue 'constraints;
-                        }
-                        fixed.push(lepton);
+                        continue 'constraints;
                     }
                     _ => {}
                 }
@@ -985,9 +1012,7 @@ impl Plan {
                     n_incr += 1;
                 }
             }
-            // A list that depends on earlier roles would be rebuilt within
-            // the search, which costs more than it saves.
-            if eq_slot == usize::MAX || !fixed.is_empty() {
+            if eq_slot == usize::MAX {
                 continue;
             }
             let mut eq = ConOp::new(k, c);
@@ -998,7 +1023,7 @@ impl Plan {
                 eq,
                 closed,
                 open,
-                fixed,
+                open_roles: open_steps.iter().map(|&d| steps[d].role).collect(),
                 open_steps,
                 n_incr,
                 eq_slot,
@@ -1168,6 +1193,7 @@ impl Searcher {
                 .iter()
                 .map(|la| JoinList {
                     entries: Vec::with_capacity(MAX_JOIN_ENTRIES),
+                    objs: Vec::with_capacity(MAX_JOIN_ENTRIES),
                     incr: Vec::with_capacity(MAX_JOIN_ENTRIES * la.n_incr),
                     ..JoinList::default()
                 })
@@ -1226,7 +1252,10 @@ impl Searcher {
         if out.status == SearchStatus::Found {
             for i in 0..self.ws.best.len() {
                 let leaf = self.ws.best[i];
-                out.ranked.push(self.ws.build(&self.hyp, &self.plan, &leaf));
+                out.ranked.push(self.plan.template);
+                if let Some(slot) = out.ranked.last_mut() {
+                    self.ws.build_into(&self.plan, &leaf, slot);
+                }
             }
         }
     }
@@ -1753,16 +1782,20 @@ impl Workspace {
             return;
         }
         let pos = self.best.iter().position(before).unwrap_or(self.best.len());
-        if self.best.len() == self.k {
-            self.best.pop();
+        let leaf = Leaf {
+            chi2: v,
+            choice: self.choice,
+        };
+        if self.best.len() < self.k {
+            self.best.push(leaf);
         }
-        self.best.insert(
-            pos,
-            Leaf {
-                chi2: v,
-                choice: self.choice,
-            },
-        );
+        // Shift the worse ones down by hand (K is small).
+        let mut i = self.best.len() - 1;
+        while i > pos {
+            self.best[i] = self.best[i - 1];
+            i -= 1;
+        }
+        self.best[pos] = leaf;
         if self.best.len() == self.k {
             self.thr = self.best[self.k - 1].chi2;
         }
@@ -1777,12 +1810,8 @@ impl Workspace {
         if !(m_closed >= 0.0 && m_closed.is_finite()) {
             return false;
         }
-        let mut key = [NONE; MAX_ROLES];
-        for &r in &la.fixed {
-            key[r] = self.choice[r];
-        }
-        if self.lists[i].stamp != self.searches || self.lists[i].key != key {
-            self.build_join(hyp, plan, i, key);
+        if self.lists[i].stamp != self.searches {
+            self.build_join(hyp, plan, i);
         }
         if self.lists[i].overflow {
             return false;
@@ -1794,47 +1823,70 @@ impl Workspace {
         let t = std::mem::take(&mut self.lists[i]);
         let entries = &t.entries[..];
         let split = entries.partition_point(|e| e.mass < m_closed);
-        let mut complete = 0;
-        let mut visit = |ws: &mut Self, e: &JoinEntry| -> bool {
-            let t_eq = la.eq.term_of(m_closed, e.mass);
-            // Every other addition is ≥ 0 and floating-point addition of
-            // non-negative numbers is monotonic, so the replayed sum is at
-            // least `v + t_eq`; shaved because farther entries' terms may
-            // round below this one's by an ulp.
-            if v + t_eq * (1.0 - 1e-12) > ws.thr {
-                return false;
-            }
-            if v + (t_eq + e.rest) * (1.0 - 1e-12) <= ws.thr
-                && e.jets & used_jets == 0
-                && e.leps & used_leps == 0
-            {
-                let mut x = v;
-                for (k, &a) in t.incr[e.at..e.at + la.n_incr].iter().enumerate() {
-                    x += if k == la.eq_slot { t_eq } else { a };
-                }
-                complete += 1;
-                if x <= ws.thr {
-                    for (s, &d) in la.open_steps.iter().enumerate() {
-                        ws.choice[plan.steps[d].role % MAX_ROLES] = e.objs[s];
-                    }
-                    ws.record(x, n_roles);
-                }
-            }
-            true
+        let walk = JoinWalk {
+            v,
+            m_closed,
+            used_jets,
+            used_leps: used_leps as u32,
+            n_roles,
         };
+        let mut complete = 0;
         // Outwards on each side of the closed mass.
         for e in &entries[split..] {
-            if !visit(self, e) {
+            if !self.join_visit(la, &t, e, &walk, &mut complete) {
                 break;
             }
         }
         for e in entries[..split].iter().rev() {
-            if !visit(self, e) {
+            if !self.join_visit(la, &t, e, &walk, &mut complete) {
                 break;
             }
         }
         self.lists[i] = t;
         self.evaluated.complete += complete;
+        true
+    }
+
+    /// Offers one filling of a join's list; `false` once the walk on this
+    /// side can stop.
+    #[inline(always)]
+    fn join_visit(
+        &mut self,
+        la: &Join,
+        t: &JoinList,
+        e: &JoinEntry,
+        w: &JoinWalk,
+        complete: &mut u64,
+    ) -> bool {
+        let t_eq = la.eq.term_of(w.m_closed, e.mass);
+        // Every other addition is ≥ 0 and floating-point addition of
+        // non-negative numbers is monotonic, so the replayed sum is at least
+        // `v + t_eq`; shaved because farther entries' terms may round below
+        // this one's by an ulp.
+        if w.v + t_eq * (1.0 - 1e-12) > self.thr {
+            return false;
+        }
+        if w.v + (t_eq + e.rest) * (1.0 - 1e-12) <= self.thr
+            && e.jets & w.used_jets == 0
+            && e.leps & w.used_leps == 0
+        {
+            let id = e.id as usize;
+            let mut x = w.v;
+            for (k, &a) in t.incr[id * la.n_incr..(id + 1) * la.n_incr]
+                .iter()
+                .enumerate()
+            {
+                x += if k == la.eq_slot { t_eq } else { a };
+            }
+            *complete += 1;
+            if x <= self.thr {
+                let objs = &t.objs[id];
+                for (s, &r) in la.open_roles.iter().enumerate() {
+                    self.choice[r % MAX_ROLES] = objs[s];
+                }
+                self.record(x, w.n_roles);
+            }
+        }
         true
     }
 
@@ -1844,10 +1896,7 @@ impl Workspace {
     /// additions (the equal-mass term, ≥ 0, left out).
     fn prepare_joins(&mut self, hyp: &Hypothesis, plan: &Plan) {
         for (i, la) in plan.joins.iter().enumerate() {
-            if !la.fixed.is_empty() {
-                continue;
-            }
-            self.build_join(hyp, plan, i, [NONE; MAX_ROLES]);
+            self.build_join(hyp, plan, i);
             let t = &self.lists[i];
             if t.overflow {
                 continue;
@@ -1870,13 +1919,13 @@ impl Workspace {
 
     /// Lists the fillings of join `i`'s open roles for `key` by replaying
     /// the search's steps.
-    fn build_join(&mut self, hyp: &Hypothesis, plan: &Plan, i: usize, key: [u8; MAX_ROLES]) {
+    fn build_join(&mut self, hyp: &Hypothesis, plan: &Plan, i: usize) {
         let mut t = std::mem::take(&mut self.lists[i]);
         t.entries.clear();
+        t.objs.clear();
         t.incr.clear();
         t.overflow = false;
         t.stamp = self.searches;
-        t.key = key;
         let mut objs = [NONE; MAX_ROLES];
         let mut incr = [0.0; 2 * MAX_ROLES + MAX_CONSTRAINTS];
         self.fill_join(
@@ -1927,12 +1976,12 @@ impl Workspace {
             }
             t.entries.push(JoinEntry {
                 mass,
-                jets: occ.used[0],
-                leps: occ.used[1],
-                objs: *objs,
-                at: t.incr.len(),
                 rest: incr[..n_incr].iter().sum(),
+                jets: occ.used[0],
+                leps: occ.used[1] as u32,
+                id: t.objs.len() as u32,
             });
+            t.objs.push(*objs);
             t.incr.extend_from_slice(&incr[..n_incr]);
             return;
         };
@@ -2100,85 +2149,62 @@ impl Workspace {
         self.dfs(hyp, plan, d + 1, v, occ);
     }
 
-    /// Replays a stored assignment to report its objects, masses and terms.
-    fn build(&mut self, hyp: &Hypothesis, plan: &Plan, leaf: &Leaf) -> RankedAssignment {
+    /// Replays a stored assignment into `out` (a copy of the plan's
+    /// template) to report its objects, masses and terms.
+    fn build_into(&mut self, plan: &Plan, leaf: &Leaf, out: &mut RankedAssignment) {
         let mut btag_chi2 = 0.0;
         for step in &plan.steps {
-            let obj = leaf.choice[step.role];
-            self.choice[step.role] = obj;
+            let role = step.role % MAX_ROLES;
+            let obj = leaf.choice[role];
+            self.choice[role] = obj;
+            let o = obj as usize;
             let p = if obj == NONE {
                 FourMomentum::ZERO
             } else {
-                if let StepKind::Jet(tag) = step.kind {
-                    btag_chi2 += match tag {
-                        TagRule::B => self.pen[1][obj as usize],
-                        TagRule::Light => self.pen[2][obj as usize],
-                        TagRule::Any => 0.0,
-                    };
-                }
-                self.obj_p4[self.pool(step).0 + obj as usize]
+                out.objects[role] = match step.kind {
+                    StepKind::Jet(tag) => {
+                        btag_chi2 += match tag {
+                            TagRule::B => self.pen[1][o % MAX_JETS],
+                            TagRule::Light => self.pen[2][o % MAX_JETS],
+                            TagRule::Any => 0.0,
+                        };
+                        ObjectRef::Jet {
+                            pos: self.jet_pos[o % MAX_JETS],
+                            index: self.jet_index[o % MAX_JETS],
+                        }
+                    }
+                    StepKind::Lepton(..) => ObjectRef::Lepton {
+                        flavour: self.lep_flav[o % MAX_LEPTONS],
+                        pos: self.lep_pos[o % MAX_LEPTONS],
+                        index: self.lep_index[o % MAX_LEPTONS],
+                    },
+                    StepKind::LargeJet { .. } => ObjectRef::LargeJet {
+                        pos: self.large_pos[o % MAX_LARGE_JETS],
+                        index: self.large_index[o % MAX_LARGE_JETS],
+                    },
+                    StepKind::Neutrino { lepton } => {
+                        out.neutrino = self
+                            .nu
+                            .get(leaf.choice[lepton] as usize)
+                            .copied()
+                            .flatten()
+                            .and_then(|s| s.as_slice().get(o).copied());
+                        ObjectRef::Neutrino { root: obj }
+                    }
+                };
+                self.obj_p4[(self.pool(step).0 + o) % OBJ_SLOTS]
             };
             let ops = &plan.comp_ops[step.comps.0..step.comps.1];
             self.prepare_prefixes(ops);
-            self.close_comps(ops, step.role, p);
+            self.close_comps(ops, role, p);
         }
-        let roles = hyp.roles();
-        let mut objects = [ObjectRef::Empty; MAX_ROLES];
-        let mut neutrino = None;
-        for (r, role) in roles.iter().enumerate() {
-            let obj = leaf.choice[r];
-            if obj == NONE {
-                continue;
-            }
-            let o = obj as usize;
-            objects[r] = match role.kind {
-                RoleKind::Jet { .. } => ObjectRef::Jet {
-                    pos: self.jet_pos[o],
-                    index: self.jet_index[o],
-                },
-                RoleKind::Lepton { .. } => ObjectRef::Lepton {
-                    flavour: self.lep_flav[o],
-                    pos: self.lep_pos[o],
-                    index: self.lep_index[o],
-                },
-                RoleKind::LargeJet { .. } => ObjectRef::LargeJet {
-                    pos: self.large_pos[o],
-                    index: self.large_index[o],
-                },
-                RoleKind::Neutrino { lepton } => {
-                    neutrino = self
-                        .nu
-                        .get(leaf.choice[lepton] as usize)
-                        .copied()
-                        .flatten()
-                        .and_then(|s| s.as_slice().get(o).copied());
-                    ObjectRef::Neutrino { root: obj }
-                }
-            };
+        for op in &plan.con_ops {
+            out.terms[op.k % MAX_CONSTRAINTS] = op.term(&self.comp_m);
         }
-        let mut terms = [0.0; MAX_CONSTRAINTS];
-        for (k, c) in hyp.constraints().iter().enumerate() {
-            terms[k] = c.chi2(&self.comp_m);
-        }
-        let mut leaf_masks = [0u16; MAX_COMPOSITES];
-        for (c, comp) in hyp.composites().iter().enumerate() {
-            leaf_masks[c] = comp.leaf_mask;
-        }
-        let mut composite_p4 = [FourMomentum::ZERO; MAX_COMPOSITES];
-        composite_p4[..hyp.composites().len()]
-            .copy_from_slice(&self.p4s[MAX_ROLES..MAX_ROLES + hyp.composites().len()]);
-        RankedAssignment {
-            chi2: leaf.chi2,
-            btag_chi2,
-            n_roles: roles.len() as u8,
-            n_composites: hyp.composites().len() as u8,
-            n_constraints: hyp.constraints().len() as u8,
-            objects,
-            composite_p4,
-            leaf_masks,
-            terms,
-            neutrino,
-        }
+        let n = out.n_composites as usize;
+        out.composite_p4[..n].copy_from_slice(&self.p4s[MAX_ROLES..MAX_ROLES + n]);
+        out.chi2 = leaf.chi2;
+        out.btag_chi2 = btag_chi2;
     }
 }
 
