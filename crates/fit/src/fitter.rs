@@ -312,6 +312,9 @@ impl<S: Solver<KinematicChi2, FitState>> Solver<KinematicChi2, FitState> for Gra
     }
 }
 
+/// Hard mode, second attempt: Newton-decrement tolerance of the soft fit
+/// that only provides the start point (its last digits do not matter).
+const WARM_START_DECREMENT: f64 = 1e-3;
 /// Initial trust-region radius in σ units.
 const INITIAL_RADIUS: f64 = 3.0;
 /// Largest trust-region radius in σ units: small enough that argmin's
@@ -326,6 +329,20 @@ const PENALTY_GROWTH: f64 = 10.0;
 /// Newton steps; the multipliers do the rest).
 const MAX_PENALTY: f64 = 1e6;
 
+/// One run of the Newton(–Lagrange) solver.
+struct Run {
+    /// Hard constraints (Newton–Lagrange), else the soft χ² (Newton).
+    hard: bool,
+    /// Start point (internal parameters).
+    x0: Params,
+    /// Start multipliers of the scaled residuals (hard mode).
+    lambda0: [f64; MAX_TERMS],
+    /// Iteration budget.
+    max_iterations: u32,
+    /// Newton-decrement tolerance.
+    tolerance: f64,
+}
+
 enum Outcome {
     Converged,
     IterationLimit,
@@ -335,9 +352,10 @@ enum Outcome {
 /// The kinematic fitter: a resolution model and settings. Build once, call
 /// [`fit`](Self::fit) per assignment.
 ///
-/// Per-fit inputs and results are fixed-capacity values; a fit allocates the
-/// boxed problem and, when uncertainties are on, the small covariance solve
-/// (the fallback method also one Hessian block per iteration).
+/// Per-fit inputs and results are fixed-capacity values and the solver's
+/// work arrays are reused across fits, so a fit allocates only the boxed
+/// problem (the rare trust-region fallback also one Hessian block per
+/// iteration). Not `Sync`-shared: give each thread its own fitter.
 ///
 /// ```
 /// use quarry_fit::{Composite, Constraint, FitInput, KinematicFitter, Measured};
@@ -386,28 +404,48 @@ impl KinematicFitter {
         let hard = self.config.mode == ConstraintMode::Hard;
         let max = self.config.max_iterations;
         let zeros = [0.0; MAX_TERMS];
+        let tol = self.config.decrement_tolerance;
         // 1. Newton(–Lagrange) from the measured point.
+        let first = Run {
+            hard,
+            x0: Params::zeros(),
+            lambda0: zeros,
+            max_iterations: max,
+            tolerance: tol,
+        };
         let (mut problem, mut x, mut iterations, mut progress) =
-            self.newton(input, problem, hard, Params::zeros(), &zeros, max);
+            match self.newton(input, problem, first) {
+                Ok(r) => r,
+                Err(e) => return FitResult::failed(input, FitStatus::InvalidInput(e), 0),
+            };
         if hard && progress != Progress::Converged && iterations < max {
             // 2. Rare: the soft fit from the measured point, then
             //    Newton–Lagrange from its minimum with the multipliers it
             //    implies (∇f + Σ 2c̃_t ∇c̃_t = 0 there, so λ = 2c̃).
-            let (p, xs, it, prog) = self.newton(
-                input,
-                problem,
-                false,
-                Params::zeros(),
-                &zeros,
-                max - iterations,
-            );
+            let soft = Run {
+                hard: false,
+                x0: Params::zeros(),
+                lambda0: zeros,
+                max_iterations: max - iterations,
+                tolerance: tol.max(WARM_START_DECREMENT),
+            };
+            let Ok((p, xs, it, prog)) = self.newton(input, problem, soft) else {
+                return FitResult::failed(input, FitStatus::NumericalFailure, iterations);
+            };
             problem = p;
             iterations += it;
             if prog == Progress::Converged && iterations < max {
                 let (_, c) = problem.value_and_residuals(&xs);
-                let lambda = c.map(|v| 2.0 * v);
-                let (p, xh, it, prog) =
-                    self.newton(input, problem, true, xs, &lambda, max - iterations);
+                let restart = Run {
+                    hard: true,
+                    x0: xs,
+                    lambda0: c.map(|v| 2.0 * v),
+                    max_iterations: max - iterations,
+                    tolerance: tol,
+                };
+                let Ok((p, xh, it, prog)) = self.newton(input, problem, restart) else {
+                    return FitResult::failed(input, FitStatus::NumericalFailure, iterations);
+                };
                 problem = p;
                 x = xh;
                 iterations += it;
@@ -438,20 +476,17 @@ impl KinematicFitter {
         }
     }
 
-    /// One argmin run of the Newton(–Lagrange) solver from `x0` with
-    /// multipliers `lambda0` (hard) or on the soft χ² (not `hard`); sets
+    /// One argmin run of the Newton(–Lagrange) solver as `run` says; sets
     /// the problem's term weights to match. If argmin reports an error the
-    /// problem is rebuilt from `input` and the run counts as failed.
+    /// problem is rebuilt from `input` (an error only if `input` is
+    /// invalid) and the run counts as failed.
     fn newton(
         &mut self,
         input: &FitInput,
         mut problem: KinematicChi2,
-        hard: bool,
-        x0: Params,
-        lambda0: &[f64; MAX_TERMS],
-        max_iterations: u32,
-    ) -> (KinematicChi2, Params, u32, Progress) {
-        if hard {
+        run: Run,
+    ) -> Result<(KinematicChi2, Params, u32, Progress), FitInputError> {
+        if run.hard {
             // The terms become equality constraints: no cost weight.
             for t in 0..problem.n_terms() {
                 problem.set_term_weights(t, 0.0, 0.0);
@@ -461,18 +496,20 @@ impl KinematicFitter {
         }
         let solver = NewtonLagrange::new(
             &mut self.workspace,
-            x0,
-            *lambda0,
-            hard,
-            self.config.decrement_tolerance,
+            run.x0,
+            run.lambda0,
+            run.hard,
+            run.tolerance,
             self.config.hard_tolerance,
         );
-        let run = Executor::new(problem, solver)
-            .configure(|s| s.max_iters(u64::from(max_iterations)))
+        let result = Executor::new(problem, solver)
+            .configure(|s| s.max_iters(u64::from(run.max_iterations)))
             .timer(false)
             .run();
-        let (problem, x, iterations, progress) = match run {
-            Err(_) => (None, x0, 0, Progress::Failed),
+        // The solver reports its own failures as a status; an argmin error
+        // (no problem attached) would lose the problem: rebuild it.
+        let (problem, x, iterations, progress) = match result {
+            Err(_) => (None, run.x0, 0, Progress::Failed),
             Ok(mut res) => (
                 res.problem.take_problem(),
                 *res.solver.x(),
@@ -481,14 +518,10 @@ impl KinematicFitter {
             ),
         };
         let problem = match problem {
-            Some(p) => p,
-            // Validated by the first build, so this succeeds.
-            None => match KinematicChi2::new(input, &self.model) {
-                Ok(p) => p,
-                Err(_) => unreachable!("input validated before"),
-            },
+            Some(p) => Ok(p),
+            None => KinematicChi2::new(input, &self.model),
         };
-        (problem, x, iterations, progress)
+        problem.map(|p| (p, x, iterations, progress))
     }
 
     /// The trust-region fit (soft) or augmented-Lagrangian loop around it

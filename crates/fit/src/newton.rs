@@ -41,8 +41,8 @@ use argmin::core::{Error, IterState, Problem, Solver, TerminationReason, Termina
 
 use crate::input::MAX_PARAMS;
 use crate::problem::{
-    back_solve, cholesky, forward_solve, modified_cholesky, with_const_dim, Expansion,
-    KinematicChi2, Params, MAX_TERMS,
+    back_solve, cholesky, forward_solve, modified_cholesky, Expansion, KinematicChi2, Params,
+    MAX_TERMS,
 };
 
 /// argmin state of the Newton–Lagrange solver: parameters and cost only.
@@ -208,7 +208,7 @@ impl Solver<KinematicChi2, NewtonState> for NewtonLagrange<'_> {
         let ws = &mut *self.ws;
         let kkt = &mut ws.kkt;
         let e = &ws.buffers[cur];
-        if !kkt.solve(e, n, m) {
+        if !kkt.solve(p, e, n, m) {
             return self.fail(state);
         }
         let mut delta = Params::zeros();
@@ -351,14 +351,14 @@ impl Kkt {
     /// The Newton (m = 0) or Newton–Lagrange step at the expansion `e`
     /// into `step` and `lambda`; false if no factorisation exists or the
     /// step is not finite.
-    fn solve(&mut self, e: &Expansion, n: usize, m: usize) -> bool {
+    fn solve(&mut self, p: &KinematicChi2, e: &Expansion, n: usize, m: usize) -> bool {
         // G = H + 2ρÃᵀÃ = LLᵀ, positive definite if possible.
         let rho = if m > 0 { RHO } else { 0.0 };
         if m == 0 {
             // No constraints: the trial expansion must see no multipliers.
             self.lambda = [0.0; MAX_TERMS];
         }
-        fill_g(&mut self.g, e, n, m, rho);
+        fill_g(&mut self.g, p, e, n, m, rho);
         if !cholesky(&self.g, n, 0.0, &mut self.l) {
             let scale = (0..n)
                 .map(|i| self.g[i * n + i].abs())
@@ -458,28 +458,28 @@ fn filter_accepts(filter: &[(f64, f64)], f: f64, h: f64, f0: f64, h0: f64) -> bo
     f.is_finite() && beats((f0, h0)) && filter.iter().all(|&e| beats(e))
 }
 
-/// G = H + 2ρÃᵀÃ (row-major n×n).
-fn fill_g(g: &mut [f64; MAX_PARAMS * MAX_PARAMS], e: &Expansion, n: usize, m: usize, rho: f64) {
-    with_const_dim!(n, fill_g_fixed, (g, e, m, rho))
-}
-
-fn fill_g_fixed<const N: usize>(
+/// G = H + 2ρÃᵀÃ (row-major n×n); each row ã_t is zero outside its
+/// term's support.
+fn fill_g(
     g: &mut [f64; MAX_PARAMS * MAX_PARAMS],
+    p: &KinematicChi2,
     e: &Expansion,
+    n: usize,
     m: usize,
     rho: f64,
 ) {
-    let g = &mut g[..N * N];
-    g.copy_from_slice(&e.h[..N * N]);
+    g[..n * n].copy_from_slice(&e.h[..n * n]);
     if rho == 0.0 {
         return;
     }
-    for a in &e.a[..m] {
-        let a = &a[..N];
-        for i in 0..N {
+    for (t, a) in e.a[..m].iter().enumerate() {
+        let support = p.term_support(t);
+        for &i in support {
+            let i = i as usize;
             let ai = 2.0 * rho * a[i];
-            for j in 0..N {
-                g[i * N + j] += ai * a[j];
+            for &j in support {
+                let j = j as usize;
+                g[i * n + j] += ai * a[j];
             }
         }
     }

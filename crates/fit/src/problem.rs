@@ -518,6 +518,13 @@ impl KinematicChi2 {
         }
     }
 
+    /// The θ (= x) indices residual `t` depends on: its composite's
+    /// objects, the neutrino's three components if a member, its common
+    /// mass if any. Its gradient is zero elsewhere.
+    pub(crate) fn term_support(&self, t: usize) -> &[u8] {
+        &self.0.support[t][..self.0.n_support[t] as usize]
+    }
+
     /// Width of term `t` (GeV).
     pub(crate) fn term_width(&self, t: usize) -> f64 {
         self.0.terms[t].width
@@ -886,20 +893,13 @@ impl KinematicChi2 {
         if !out.f.is_finite() {
             return;
         }
-        let n = self.0.n_params;
         let (d1, d2) = self.jacobian(&th);
-        for i in 0..n {
-            let row = &mut out.h[i * n..i * n + n];
-            for j in 0..n {
-                row[j] *= d1[i] * d1[j];
-            }
-            row[i] += d2[i] * (out.g[i] + out.gl[i]);
-            out.g[i] *= d1[i];
-        }
+        with_const_dim!(self.0.n_params, to_internal_fixed, (out, &d1, &d2));
         for (t, term) in self.0.terms[..self.0.n_terms].iter().enumerate() {
             let inv_w = 1.0 / term.width;
             out.c[t] *= inv_w;
-            for j in 0..n {
+            for &j in &self.0.support[t][..self.0.n_support[t] as usize] {
+                let j = j as usize;
                 out.a[t][j] *= d1[j] * inv_w;
             }
         }
@@ -945,6 +945,23 @@ impl KinematicChi2 {
         block[..n * n].copy_from_slice(&e.h[..n * n]);
         g.as_mut_slice()[..n].copy_from_slice(&e.g[..n]);
         (e.f, g)
+    }
+}
+
+/// The chain rule θ → x for the gradient and Hessian of an N-parameter
+/// expansion (the map is separable: dθ_i/dx_i = d1_i, d²θ_i/dx_i² = d2_i).
+fn to_internal_fixed<const N: usize>(
+    out: &mut Expansion,
+    d1: &[f64; MAX_PARAMS],
+    d2: &[f64; MAX_PARAMS],
+) {
+    let h = &mut out.h[..N * N];
+    for i in 0..N {
+        for j in 0..N {
+            h[i * N + j] *= d1[i] * d1[j];
+        }
+        h[i * N + i] += d2[i] * (out.g[i] + out.gl[i]);
+        out.g[i] *= d1[i];
     }
 }
 

@@ -6,6 +6,7 @@ mod common;
 use argmin::core::{CostFunction, Gradient, Hessian};
 use common::{pair_input, smear, w_pz_roots, PairEvent};
 use quarry_fit::{KinematicChi2, Params};
+use quarry_pdg::TOP_MASS;
 use quarry_resolution::ResolutionModel;
 use rand::{Rng, SeedableRng};
 use rand_pcg::Pcg64;
@@ -50,7 +51,7 @@ fn analytic_derivatives_match_finite_differences() {
     let mut checked = 0;
     for event in 0..40 {
         let ev = PairEvent::generate_with_cuts(
-            if event % 2 == 0 { 172.57 } else { 900.0 },
+            if event % 2 == 0 { TOP_MASS } else { 900.0 },
             300.0,
             25.0,
             &mut rng,
