@@ -23,7 +23,7 @@ pub const STDIN_NAME: &str = "<stdin>";
 /// garbage such as a value in degrees is caught.
 pub const MAX_ABS_ETA: f64 = 20.0;
 
-/// Largest |φ| accepted [rad]: inputs may use (−π, π] or [0, 2π); anything
+/// Largest |φ| accepted \[rad\]: inputs may use (−π, π] or [0, 2π); anything
 /// beyond 2π is most likely in degrees.
 pub const MAX_ABS_PHI: f64 = 2.0 * PI;
 

@@ -133,7 +133,7 @@ impl fmt::Display for Truth {
 /// decision); the reader enforces it.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Jet {
-    /// Four-momentum [GeV].
+    /// Four-momentum \[GeV\].
     pub p4: FourMomentum,
     /// b-tag score in [0, 1]; 0 when the input has none.
     pub btag: f64,
@@ -196,7 +196,7 @@ impl Momentum for Jet {
 /// A large-radius jet, which may contain a whole hadronic W, Z, H or top.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct FatJet {
-    /// Four-momentum [GeV]; its mass is the jet mass used in mass windows.
+    /// Four-momentum \[GeV\]; its mass is the jet mass used in mass windows.
     pub p4: FourMomentum,
     /// Simulation truth label, if the input has one (e.g. `h.W`).
     pub truth: Option<Truth>,
@@ -225,7 +225,7 @@ pub enum Flavour {
 /// Invariant: `charge` is −1 or +1 (0 only when the input gives none).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Lepton {
-    /// Four-momentum [GeV]; its mass is respected by the neutrino solver.
+    /// Four-momentum \[GeV\]; its mass is respected by the neutrino solver.
     pub p4: FourMomentum,
     /// Flavour.
     pub flavour: Flavour,
@@ -251,11 +251,11 @@ impl Momentum for Lepton {
 /// in GeV² (the reader checks it is positive semi-definite).
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct Met {
-    /// x component [GeV].
+    /// x component \[GeV\].
     pub px: f64,
-    /// y component [GeV].
+    /// y component \[GeV\].
     pub py: f64,
-    /// Covariance `[xx, xy, yy]` [GeV²], if the input has one.
+    /// Covariance `[xx, xy, yy]` \[GeV²\], if the input has one.
     pub cov: Option<[f64; 3]>,
 }
 
@@ -270,7 +270,7 @@ impl Met {
         Met { px, py, cov: None }
     }
 
-    /// Magnitude [GeV].
+    /// Magnitude \[GeV\].
     ///
     /// ```
     /// assert_eq!(quarry_event::Met::new(0.0, -2.0).pt(), 2.0);

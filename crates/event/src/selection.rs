@@ -17,19 +17,19 @@ use crate::{Event, Momentum};
 ///   replaces it.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Selection {
-    /// Minimum jet pt [GeV].
+    /// Minimum jet pt \[GeV\].
     pub jet_pt_min: f64,
     /// Maximum jet |η|.
     pub jet_abs_eta_max: f64,
-    /// Minimum large-radius jet pt [GeV].
+    /// Minimum large-radius jet pt \[GeV\].
     pub fat_jet_pt_min: f64,
     /// Maximum large-radius jet |η|.
     pub fat_jet_abs_eta_max: f64,
-    /// Minimum electron pt [GeV].
+    /// Minimum electron pt \[GeV\].
     pub electron_pt_min: f64,
     /// Maximum electron |η|.
     pub electron_abs_eta_max: f64,
-    /// Minimum muon pt [GeV].
+    /// Minimum muon pt \[GeV\].
     pub muon_pt_min: f64,
     /// Maximum muon |η|.
     pub muon_abs_eta_max: f64,

@@ -19,31 +19,31 @@
 //! ```
 #![deny(missing_docs)]
 
-/// W boson mass [GeV] (PDG RPP 2026 table: 80.362 ± 0.008).
+/// W boson mass \[GeV\] (PDG RPP 2026 table: 80.362 ± 0.008).
 pub const W_MASS: f64 = 80.362;
-/// W boson total width [GeV] (PDG RPP 2026 table: 2.14 ± 0.05).
+/// W boson total width \[GeV\] (PDG RPP 2026 table: 2.14 ± 0.05).
 pub const W_WIDTH: f64 = 2.14;
-/// Z boson mass [GeV] (PDG RPP 2026 table: 91.1879 ± 0.0020).
+/// Z boson mass \[GeV\] (PDG RPP 2026 table: 91.1879 ± 0.0020).
 pub const Z_MASS: f64 = 91.1879;
-/// Z boson total width [GeV] (PDG RPP 2026 table: 2.4955 ± 0.0023).
+/// Z boson total width \[GeV\] (PDG RPP 2026 table: 2.4955 ± 0.0023).
 pub const Z_WIDTH: f64 = 2.4955;
-/// Higgs boson mass [GeV] (PDG RPP 2026 table: 125.13 ± 0.11).
+/// Higgs boson mass \[GeV\] (PDG RPP 2026 table: 125.13 ± 0.11).
 pub const HIGGS_MASS: f64 = 125.13;
-/// Higgs boson total width [GeV] (PDG RPP 2026 table: 3.0 +1.5 −0.7 MeV).
+/// Higgs boson total width \[GeV\] (PDG RPP 2026 table: 3.0 +1.5 −0.7 MeV).
 pub const HIGGS_WIDTH: f64 = 0.003;
-/// Top quark mass [GeV] (PDG RPP 2026 table: 172.60 ± 0.27).
+/// Top quark mass \[GeV\] (PDG RPP 2026 table: 172.60 ± 0.27).
 pub const TOP_MASS: f64 = 172.6;
-/// Top quark total width [GeV] (PDG RPP 2026 table: 1.42 +0.19 −0.15).
+/// Top quark total width \[GeV\] (PDG RPP 2026 table: 1.42 +0.19 −0.15).
 pub const TOP_WIDTH: f64 = 1.42;
-/// Bottom quark mass [GeV] (PDG RPP 2026 table: MS-bar m_b(m_b) =
+/// Bottom quark mass \[GeV\] (PDG RPP 2026 table: MS-bar m_b(m_b) =
 /// 4.186 ± 0.006); used only as the parton mass of a b quark in the toy
 /// generator.
 pub const BOTTOM_MASS: f64 = 4.186;
-/// Electron mass [GeV] (PDG RPP 2026 table).
+/// Electron mass \[GeV\] (PDG RPP 2026 table).
 pub const ELECTRON_MASS: f64 = 0.000_510_998_950_69;
-/// Muon mass [GeV] (PDG RPP 2026 table).
+/// Muon mass \[GeV\] (PDG RPP 2026 table).
 pub const MUON_MASS: f64 = 0.105_658_375_5;
-/// Tau mass [GeV] (PDG RPP 2026 table: 1.77693 ± 0.00009).
+/// Tau mass \[GeV\] (PDG RPP 2026 table: 1.77693 ± 0.00009).
 pub const TAU_MASS: f64 = 1.776_93;
 
 /// Branching ratios used by the toy generator (PDG 2024 central values).

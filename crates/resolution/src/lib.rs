@@ -35,9 +35,9 @@ use serde::{Deserialize, Serialize};
 pub struct JetBin {
     /// Upper edge of the bin in |η|; bins are checked in increasing order.
     pub abs_eta_max: f64,
-    /// Stochastic term a [√GeV].
+    /// Stochastic term a \[√GeV\].
     pub stochastic: f64,
-    /// Noise term b [GeV].
+    /// Noise term b \[GeV\].
     pub noise: f64,
     /// Constant term c (dimensionless).
     pub constant: f64,
@@ -66,7 +66,7 @@ impl JetBin {
 pub struct LeptonResolution {
     /// Constant relative term c.
     pub constant: f64,
-    /// Term growing with pt, k [1/GeV] (tracker curvature resolution).
+    /// Term growing with pt, k \[1/GeV\] (tracker curvature resolution).
     pub per_gev: f64,
 }
 
@@ -88,9 +88,9 @@ impl LeptonResolution {
 /// MET resolution used when the input has no per-event covariance.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct MetResolution {
-    /// Floor of σ per component [GeV] (pile-up and soft terms).
+    /// Floor of σ per component \[GeV\] (pile-up and soft terms).
     pub floor: f64,
-    /// Coefficient s [√GeV] multiplying √(Σ jet pt).
+    /// Coefficient s \[√GeV\] multiplying √(Σ jet pt).
     pub sqrt_sum_pt: f64,
 }
 
@@ -246,7 +246,7 @@ impl ResolutionModel {
             .unwrap_or_else(|| self.jet.last().expect("validated: at least one bin"))
     }
 
-    /// σ(E) [GeV] of a jet with energy `e` [GeV] at pseudorapidity `eta`.
+    /// σ(E) \[GeV\] of a jet with energy `e` \[GeV\] at pseudorapidity `eta`.
     ///
     /// ```
     /// let m = quarry_resolution::ResolutionModel::default();
@@ -257,7 +257,7 @@ impl ResolutionModel {
         self.jet_bin(eta).sigma(e)
     }
 
-    /// σ(pt) [GeV] of a charged lepton.
+    /// σ(pt) \[GeV\] of a charged lepton.
     ///
     /// ```
     /// use quarry_event::Flavour;
@@ -272,8 +272,8 @@ impl ResolutionModel {
         }
     }
 
-    /// MET covariance `[xx, xy, yy]` [GeV²]: the event's own if present,
-    /// else the model's diagonal one for the given Σ jet pt [GeV].
+    /// MET covariance `[xx, xy, yy]` \[GeV²\]: the event's own if present,
+    /// else the model's diagonal one for the given Σ jet pt \[GeV\].
     ///
     /// ```
     /// use quarry_event::Met;
@@ -290,7 +290,7 @@ impl ResolutionModel {
         [s * s, 0.0, s * s]
     }
 
-    /// σ per MET component [GeV] from the model, for Σ jet pt [GeV].
+    /// σ per MET component \[GeV\] from the model, for Σ jet pt \[GeV\].
     ///
     /// ```
     /// let m = quarry_resolution::ResolutionModel::default();
