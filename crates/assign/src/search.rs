@@ -1324,7 +1324,11 @@ impl Searcher {
         if self.config.prune {
             ws.prepare_joins(hyp, plan);
         }
-        ws.dfs(hyp, plan, 0, 0.0, Occupancy::default());
+        // The join lists are read-only during the search: moved out of the
+        // workspace meanwhile, so the search can borrow them beside it.
+        let lists = std::mem::take(&mut ws.lists);
+        ws.dfs(hyp, plan, &lists, 0, 0.0, Occupancy::default());
+        ws.lists = lists;
         if !ws.best.is_empty() {
             SearchStatus::Found
         } else if let (Some(e), false) = (nu_error, nu_ok) {
@@ -1804,23 +1808,26 @@ impl Workspace {
     /// Completes the assignment below join `i`'s step from its list (see
     /// [`Join`]), given the running χ² `v` and the objects used;
     /// `false` if the list cannot be used here (the caller descends).
-    fn join(&mut self, hyp: &Hypothesis, plan: &Plan, i: usize, v: f64, occ: Occupancy) -> bool {
+    fn join(
+        &mut self,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        t: &JoinList,
+        i: usize,
+        v: f64,
+        occ: Occupancy,
+    ) -> bool {
         let la = &plan.joins[i];
         let m_closed = self.comp_m[la.closed % MAX_COMPOSITES];
         if !(m_closed >= 0.0 && m_closed.is_finite()) {
             return false;
         }
-        if self.lists[i].stamp != self.searches {
-            self.build_join(hyp, plan, i);
-        }
-        if self.lists[i].overflow {
+        if t.overflow || t.stamp != self.searches {
             return false;
         }
         let used_jets = occ.used[0] | occ.blocked;
         let used_leps = occ.used[1];
         let n_roles = hyp.roles().len();
-        // The list is moved out while it is walked (no copy: a `Vec` swap).
-        let t = std::mem::take(&mut self.lists[i]);
         let entries = &t.entries[..];
         let split = entries.partition_point(|e| e.mass < m_closed);
         let walk = JoinWalk {
@@ -1833,16 +1840,15 @@ impl Workspace {
         let mut complete = 0;
         // Outwards on each side of the closed mass.
         for e in &entries[split..] {
-            if !self.join_visit(la, &t, e, &walk, &mut complete) {
+            if !self.join_visit(la, t, e, &walk, &mut complete) {
                 break;
             }
         }
         for e in entries[..split].iter().rev() {
-            if !self.join_visit(la, &t, e, &walk, &mut complete) {
+            if !self.join_visit(la, t, e, &walk, &mut complete) {
                 break;
             }
         }
-        self.lists[i] = t;
         self.evaluated.complete += complete;
         true
     }
@@ -2016,7 +2022,15 @@ impl Workspace {
         }
     }
 
-    fn dfs(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, partial: f64, occ: Occupancy) {
+    fn dfs(
+        &mut self,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        lists: &[JoinList],
+        d: usize,
+        partial: f64,
+        occ: Occupancy,
+    ) {
         let step = &plan.steps[d];
         let (mask, none) = self.admissible_objects(hyp, step, d, &occ);
         if mask == 0 && !none {
@@ -2101,12 +2115,12 @@ impl Workspace {
                 self.choice[role] = obj;
                 if obj == NONE {
                     self.close_comps(ops, role, FourMomentum::ZERO);
-                    self.descend(hyp, plan, d, v, occ);
+                    self.descend(hyp, plan, lists, d, v, occ);
                 } else {
                     let o = obj as usize;
                     self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
                     let occ = placed(self, o);
-                    self.descend(hyp, plan, d, v, occ);
+                    self.descend(hyp, plan, lists, d, v, occ);
                 }
             }
         } else {
@@ -2117,7 +2131,7 @@ impl Workspace {
                 let v = self.eval_cons(cons, partial);
                 n += 1;
                 if self.admissible(v, rest) {
-                    self.descend(hyp, plan, d, v, occ);
+                    self.descend(hyp, plan, lists, d, v, occ);
                 }
             }
             let mut m = mask;
@@ -2130,7 +2144,7 @@ impl Workspace {
                 n += 1;
                 if self.admissible(v, rest) {
                     let occ = placed(self, o);
-                    self.descend(hyp, plan, d, v, occ);
+                    self.descend(hyp, plan, lists, d, v, occ);
                 }
             }
             self.evaluated.partial += n;
@@ -2140,13 +2154,21 @@ impl Workspace {
     /// Goes on from step `d` (its candidate placed, running χ² `v`): by the
     /// step's join if it has one, else by the next step.
     #[inline(always)]
-    fn descend(&mut self, hyp: &Hypothesis, plan: &Plan, d: usize, v: f64, occ: Occupancy) {
+    fn descend(
+        &mut self,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        lists: &[JoinList],
+        d: usize,
+        v: f64,
+        occ: Occupancy,
+    ) {
         if let (Some(i), true) = (plan.steps[d].join, self.prune) {
-            if self.join(hyp, plan, i, v, occ) {
+            if self.join(hyp, plan, &lists[i], i, v, occ) {
                 return;
             }
         }
-        self.dfs(hyp, plan, d + 1, v, occ);
+        self.dfs(hyp, plan, lists, d + 1, v, occ);
     }
 
     /// Replays a stored assignment into `out` (a copy of the plan's
