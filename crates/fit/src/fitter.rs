@@ -355,7 +355,8 @@ enum Outcome {
 /// Per-fit inputs and results are fixed-capacity values and the solver's
 /// work arrays are reused across fits, so a fit allocates only the boxed
 /// problem (the rare trust-region fallback also one Hessian block per
-/// iteration). Not `Sync`-shared: give each thread its own fitter.
+/// iteration). [`fit`](Self::fit) takes `&mut self`: give each thread its
+/// own fitter (a clone).
 ///
 /// ```
 /// use quarry_fit::{Composite, Constraint, FitInput, KinematicFitter, Measured};
