@@ -768,13 +768,17 @@ fn covariance_diagonal(
             let m = problem.n_terms();
             let w = problem.measurement_weight();
             for i in 0..n {
-                for j in 0..n {
-                    let mut v = w[i][j];
-                    for t in 0..m {
-                        let wt = problem.term_width(t);
-                        v += e.a[t][i] * e.a[t][j] / (wt * wt);
+                g[i * n..i * n + n].copy_from_slice(&w[i][..n]);
+            }
+            for t in 0..m {
+                let wt = problem.term_width(t);
+                let r = 1.0 / (wt * wt);
+                let support = problem.term_support(t);
+                for &i in support {
+                    let ai = r * e.a[t][i as usize];
+                    for &j in support {
+                        g[i as usize * n + j as usize] += ai * e.a[t][j as usize];
                     }
-                    g[i * n + j] = v;
                 }
             }
             if !cholesky(&g, n, 0.0, &mut l) {

@@ -603,17 +603,17 @@ impl KinematicChi2 {
     }
 
     fn composite_sums(&self, th: &[f64; MAX_PARAMS]) -> [FourMomentum; MAX_COMPOSITES] {
-        let (p, nu) = self.four_momenta(th);
+        let d = &*self.0;
+        let nu = self
+            .neutrino_index()
+            .map(|k| neutrino_p4(th[k], th[k + 1], th[k + 2]));
         let mut sums = [FourMomentum::ZERO; MAX_COMPOSITES];
-        for (c, sum) in self.0.composites[..self.0.n_composites]
-            .iter()
-            .zip(sums.iter_mut())
-        {
+        for (c, sum) in d.composites[..d.n_composites].iter().zip(sums.iter_mut()) {
             let mut mask = c.object_mask();
             while mask != 0 {
                 let i = mask.trailing_zeros() as usize;
                 mask &= mask - 1;
-                *sum += p[i];
+                *sum += d.measured[i] * th[i];
             }
             if c.contains_neutrino() {
                 if let Some(nu) = nu {
