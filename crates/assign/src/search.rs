@@ -1867,12 +1867,14 @@ impl Workspace {
         let t_eq = la.eq.term_of(w.m_closed, e.mass);
         // Every other addition is ≥ 0 and floating-point addition of
         // non-negative numbers is monotonic, so the replayed sum is at least
-        // `v + t_eq`; shaved because farther entries' terms may round below
-        // this one's by an ulp.
-        if w.v + t_eq * (1.0 - 1e-12) > self.thr {
+        // `v + t_eq`, and that of every farther entry too, up to rounding:
+        // shaved by 1e-12 of the total like `admissible`.
+        let at_least = w.v + t_eq;
+        if at_least - 1e-12 * at_least > self.thr {
             return false;
         }
-        if w.v + (t_eq + e.rest) * (1.0 - 1e-12) <= self.thr
+        let with_rest = at_least + e.rest;
+        if with_rest - 1e-12 * with_rest <= self.thr
             && e.jets & w.used_jets == 0
             && e.leps & w.used_leps == 0
         {
