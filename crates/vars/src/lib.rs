@@ -264,7 +264,8 @@ impl EventVars {
     /// before).
     ///
     /// Errors: [`VarsError::NonFinite`] if a jet, lepton or MET momentum is
-    /// not finite; [`VarsError::BadWindow`] for an invalid `config`.
+    /// not finite, or finite momenta overflow a result (HT, ST, leading-jet
+    /// pT, m(ℓℓ)); [`VarsError::BadWindow`] for an invalid `config`.
     ///
     /// ```
     /// use quarry_event::{Event, Selection};
@@ -288,7 +289,7 @@ impl EventVars {
         if !finite {
             return Err(VarsError::NonFinite);
         }
-        Ok(EventVars {
+        let vars = EventVars {
             n_jets: event.jets.len(),
             n_bjets: event
                 .jets
@@ -310,7 +311,17 @@ impl EventVars {
             leading_jet_pt: event.jets.iter().map(|j| j.p4.pt()).reduce(f64::max),
             m_ll_z: m_ll_closest_to_z(event),
             same_sign: has_same_sign_pair(event),
-        })
+        };
+        // Finite inputs can still overflow: px = py = 1e308 has pT = +inf,
+        // and a mass of two such leptons is NaN.
+        let finite_result = vars.ht.is_finite()
+            && vars.st.is_finite()
+            && vars.leading_jet_pt.is_none_or(f64::is_finite)
+            && vars.m_ll_z.is_none_or(f64::is_finite);
+        if !finite_result {
+            return Err(VarsError::NonFinite);
+        }
+        Ok(vars)
     }
 }
 
