@@ -448,3 +448,30 @@ fn non_finite_weight_is_bad_input() {
         }
     }
 }
+
+/// Finite components whose transverse momentum overflows (px = py =
+/// f64::MAX, found by the event_direct fuzz target) must not give HT = +∞:
+/// the event is `bad_input`.
+#[test]
+fn finite_momenta_that_overflow_pt_are_bad_input() {
+    let p = &pipelines()[0];
+    let mut e = Event::new(11);
+    e.electrons.push(Lepton {
+        p4: FourMomentum::new(f64::MAX, f64::MAX, 3533.9, 3533.1),
+        flavour: Flavour::Electron,
+        charge: 1,
+        truth: None,
+        index: 0,
+    });
+    e.electrons.push(Lepton {
+        p4: FourMomentum::ZERO,
+        flavour: Flavour::Electron,
+        charge: 0,
+        truth: None,
+        index: 1,
+    });
+    for r in p.reconstruct(&e) {
+        assert_eq!(r.status, Status::BadInput, "{:?}", r.vars);
+        assert_eq!(r.reason, "an input momentum is not finite");
+    }
+}

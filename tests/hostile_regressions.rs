@@ -64,8 +64,10 @@ fn fuzz_reproducers_stay_fixed() {
         .unwrap();
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz/regressions");
     let mut files = 0;
-    for target in std::fs::read_dir(&root).unwrap() {
-        for entry in std::fs::read_dir(target.unwrap().path()).unwrap() {
+    // event_direct inputs are structured (arbitrary-encoded), not CSV: each
+    // has its own explicit test in tests/hostile_kinematics.rs.
+    for target in ["csv_reader", "pipeline"] {
+        for entry in std::fs::read_dir(root.join(target)).unwrap() {
             let path = entry.unwrap().path();
             replay(&path, &pipeline);
             files += 1;
