@@ -593,6 +593,10 @@ struct JoinWalk {
 /// for that event (exact either way).
 const MAX_JOIN_ENTRIES: usize = 4096;
 
+/// Room reserved for a join's list when a [`Searcher`] is made: a list never
+/// shrinks, so after the first events a search allocates nothing for it.
+const JOIN_ENTRIES_RESERVED: usize = 256;
+
 /// One filling of a join's open roles.
 #[derive(Clone, Copy, Debug)]
 struct JoinEntry {
@@ -1110,8 +1114,10 @@ struct Workspace {
 ///
 /// All buffers are allocated in [`Searcher::new`]; a search allocates only
 /// the returned `Vec` of ranked assignments (none with
-/// [`Searcher::search_into`] once its vector has capacity), never per
-/// assignment.
+/// [`Searcher::search_into`] once its vector has capacity), and, for a
+/// hypothesis whose equal-mass side is joined from a per-event list, grows
+/// that list when an event has more fillings than any before (at most 4096),
+/// never per assignment.
 ///
 /// ```
 /// use quarry_assign::{presets, SearchConfig, Searcher, SearchStatus};
@@ -1192,9 +1198,10 @@ impl Searcher {
                 .joins
                 .iter()
                 .map(|la| JoinList {
-                    entries: Vec::with_capacity(MAX_JOIN_ENTRIES),
-                    objs: Vec::with_capacity(MAX_JOIN_ENTRIES),
-                    incr: Vec::with_capacity(MAX_JOIN_ENTRIES * la.n_incr),
+                    // Grown (rarely) by the first events, then reused.
+                    entries: Vec::with_capacity(JOIN_ENTRIES_RESERVED),
+                    objs: Vec::with_capacity(JOIN_ENTRIES_RESERVED),
+                    incr: Vec::with_capacity(JOIN_ENTRIES_RESERVED * la.n_incr),
                     ..JoinList::default()
                 })
                 .collect(),
