@@ -202,7 +202,7 @@ pub fn m_ll_closest_to_z(event: &Event) -> Option<f64> {
     let mut best: Option<f64> = None;
     for (i, a) in leptons.iter().enumerate() {
         for b in &leptons[i + 1..] {
-            if a.flavour != b.flavour || a.charge * b.charge != -1 {
+            if a.flavour != b.flavour || !matches!((a.charge, b.charge), (1, -1) | (-1, 1)) {
                 continue;
             }
             let m = (a.p4 + b.p4).m();
