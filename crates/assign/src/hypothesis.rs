@@ -339,7 +339,9 @@ impl LeptonPair {
         };
         let c = match self.charge {
             Relation::Same => a.1 == b.1,
-            Relation::Different => a.1 == -b.1 && a.1 != 0,
+            // Widened: `-b.1` overflows for i8::MIN (a code-built lepton with
+            // an invalid charge must not panic).
+            Relation::Different => a.1 != 0 && i16::from(a.1) == -i16::from(b.1),
             Relation::Any => true,
         };
         f && c
