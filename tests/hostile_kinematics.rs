@@ -501,3 +501,35 @@ fn out_of_range_charges_do_not_panic() {
         }
     }
 }
+
+/// i8::MIN as a lepton charge (found by the event_direct fuzz target:
+/// negating it overflowed in the lepton-pair rule of `tz-3l`) gives a status,
+/// not a panic.
+#[test]
+fn most_negative_charge_does_not_panic() {
+    let p = &pipelines()[0];
+    let mut e = Event::new(13);
+    for (i, q) in [i8::MIN, -109, 1].into_iter().enumerate() {
+        e.muons.push(Lepton {
+            p4: FourMomentum::from_pt_eta_phi_m(40.0 + i as f64, 0.3 * i as f64, i as f64, 0.1),
+            flavour: Flavour::Muon,
+            charge: q,
+            truth: None,
+            index: i as u32,
+        });
+    }
+    for i in 0..4 {
+        e.jets.push(
+            Jet::new(
+                FourMomentum::from_pt_eta_phi_m(60.0, 0.2 * i as f64, -1.0 + i as f64, 5.0),
+                0.9,
+            )
+            .with_index(i),
+        );
+    }
+    let results = p.reconstruct(&e);
+    assert_eq!(results.len(), p.hypotheses().len());
+    for r in results {
+        assert!(Status::ALL.contains(&r.status));
+    }
+}
