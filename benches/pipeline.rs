@@ -14,7 +14,7 @@ use std::io::Read;
 use std::sync::Arc;
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
-use quarry::csv::{ErrorPolicy, EventReader, EventWriter, ReadOptions, Record};
+use quarry::csv::{encode_rows, ErrorPolicy, EventReader, EventWriter, ReadOptions, Record};
 use quarry::output::Row;
 use quarry::stream::ordered_chunked_map;
 use quarry::toy::{Generator, ToyConfig};
@@ -83,9 +83,10 @@ fn bench(c: &mut Criterion) {
 
     g.bench_function("csv_to_rows_2_threads", |b| {
         b.iter(|| {
-            let mut out = csv::Writer::from_writer(Vec::with_capacity(8 << 20));
+            let mut out: Vec<u8> = Vec::with_capacity(8 << 20);
             // As the CLI does: the reader thread only groups rows into raw
-            // events, the workers parse and reconstruct them.
+            // events, the workers parse, reconstruct and format them as CSV
+            // text, the calling thread only copies bytes.
             let mut r = reader(&data);
             let raw = std::iter::from_fn(move || r.next_raw())
                 .enumerate()
@@ -95,29 +96,30 @@ fn bench(c: &mut Criterion) {
                     raw,
                     4096,
                     || pipeline.worker(),
-                    |w, (ordinal, raw)| match raw.parse() {
-                        Record::Good(e) => w
-                            .reconstruct(e)
-                            .iter()
-                            .map(|r| Row::from_reconstruction(ordinal, r))
-                            .collect::<Vec<_>>(),
-                        Record::Bad(bad) => vec![Row::bad_input(
-                            ordinal,
-                            bad.id,
-                            "ttbar-ljets",
-                            &bad.error.to_string(),
-                        )],
+                    |w, (ordinal, raw)| {
+                        let rows = match raw.parse() {
+                            Record::Good(e) => w
+                                .reconstruct(e)
+                                .iter()
+                                .map(|r| Row::from_reconstruction(ordinal, r))
+                                .collect::<Vec<_>>(),
+                            Record::Bad(bad) => vec![Row::bad_input(
+                                ordinal,
+                                bad.id,
+                                "ttbar-ljets",
+                                &bad.error.to_string(),
+                            )],
+                        };
+                        encode_rows(&rows).map_err(|e| e.to_string())
                     },
-                    |rows| {
-                        for row in &rows {
-                            out.serialize(row).map_err(|e| e.to_string())?;
-                        }
+                    |bytes| {
+                        out.extend_from_slice(&bytes?);
                         Ok(())
                     },
                 )
             })
             .expect("run");
-            out.into_inner().expect("flush").len()
+            out.len()
         })
     });
 

@@ -4,7 +4,9 @@
 use std::path::PathBuf;
 
 use quarry::assign::{BtagPolicy, SearchConfig};
-use quarry::csv::{BadReason, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, RowWriter};
+use quarry::csv::{
+    encode_rows, BadReason, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, RowWriter,
+};
 use quarry::event::Selection;
 use quarry::output::Row;
 use quarry::stream::{ordered_chunked_map, Shard};
@@ -125,15 +127,18 @@ impl Iterator for Records<'_> {
 
 /// What a worker makes of one raw event.
 enum Outcome {
-    /// The event's rows, and the reader's reason if it was rejected.
-    Rows(Vec<Row>, Option<BadReason>),
+    /// The event's rows already formatted as CSV text (formatting runs on
+    /// the workers; the writing thread only copies bytes), each row's
+    /// status, and the reader's reason if the event was rejected.
+    Rows(Vec<u8>, Vec<&'static str>, Option<BadReason>),
     /// Another shard's event that needs no output.
     OtherShard,
-    /// A bad event under the stop policy: the run ends with this message.
-    Stop(String),
+    /// The run ends with this failure: a bad event under the stop policy.
+    Stop(Failure),
 }
 
-/// Parses a raw event (on a worker thread) and reconstructs it.
+/// Parses a raw event (on a worker thread), reconstructs it and formats
+/// its rows.
 fn outcome_of(
     worker: &mut quarry::Worker<'_>,
     pipeline: &Pipeline,
@@ -149,16 +154,19 @@ fn outcome_of(
             Some(id) => format!("event {id}"),
             None => format!("event '{}'", bad.raw_id),
         };
-        return Outcome::Stop(format!(
+        return Outcome::Stop(Failure::Input(format!(
             "{} ({id}; stopped at the first bad event, use --on-bad skip to go on)",
             bad.error
-        ));
+        )));
     }
     if !kept {
         return Outcome::OtherShard;
     }
     let (rows, bad) = rows_of(worker, pipeline, ordinal, record);
-    Outcome::Rows(rows, bad)
+    match encode_rows(&rows) {
+        Ok(bytes) => Outcome::Rows(bytes, rows.iter().map(|r| r.status).collect(), bad),
+        Err(e) => Outcome::Stop(Failure::Output(e.to_string())),
+    }
 }
 
 /// The rows of one record, and the reader's reason if it was rejected.
@@ -244,20 +252,20 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             |worker, item| outcome_of(worker, &pipeline, policy, item),
             |outcome| {
                 read += 1;
-                let (rows, bad) = match outcome {
-                    Outcome::Rows(rows, bad) => (rows, bad),
+                let (bytes, statuses, bad) = match outcome {
+                    Outcome::Rows(bytes, statuses, bad) => (bytes, statuses, bad),
                     Outcome::OtherShard => return Ok(()),
-                    Outcome::Stop(message) => return Err(Failure::Input(message)),
+                    Outcome::Stop(failure) => return Err(failure),
                 };
                 summary.processed += 1;
                 if let Some(reason) = bad {
                     *summary.bad_by_reason.entry(reason.as_str()).or_default() += 1;
                 }
-                for row in &rows {
-                    *summary.by_status.entry(row.status).or_default() += 1;
-                    writer
-                        .write(row)
-                        .map_err(|e| Failure::Output(e.to_string()))?;
+                writer
+                    .write_encoded(&bytes)
+                    .map_err(|e| Failure::Output(e.to_string()))?;
+                for status in statuses {
+                    *summary.by_status.entry(status).or_default() += 1;
                     summary.rows += 1;
                 }
                 bar.inc(1);

@@ -269,9 +269,23 @@ fn finish_csv(csv: csv::Writer<AtomicOutput>, name: &str) -> Result<(), CsvError
 /// assert_eq!(text, "event,status,m_top\n1,ok,172.5\n");
 /// ```
 pub struct RowWriter<T: Serialize> {
-    csv: csv::Writer<AtomicOutput>,
+    state: RowState,
     name: String,
     _row: std::marker::PhantomData<fn(&T)>,
+}
+
+/// Which of the two ways of writing a [`RowWriter`] is in use: they must
+/// not be mixed, because each writes the header its own way.
+enum RowState {
+    /// Nothing written yet.
+    Fresh(AtomicOutput),
+    /// Rows serialized one by one ([`RowWriter::write`]); csv writes the
+    /// header with the first row.
+    Rows(Box<csv::Writer<AtomicOutput>>),
+    /// Pre-encoded blocks ([`RowWriter::write_encoded`]), header written.
+    Encoded(AtomicOutput),
+    /// Transient, while switching state.
+    Moving,
 }
 
 impl<T: Serialize> RowWriter<T> {
@@ -280,21 +294,130 @@ impl<T: Serialize> RowWriter<T> {
         let out = AtomicOutput::create(path)?;
         let name = out.name().to_string();
         Ok(RowWriter {
-            csv: csv::WriterBuilder::new().has_headers(true).from_writer(out),
+            state: RowState::Fresh(out),
             name,
             _row: std::marker::PhantomData,
         })
     }
 
-    /// Writes one row.
+    /// Writes one row. Not to be mixed with
+    /// [`write_encoded`](Self::write_encoded) on the same writer (an error).
     pub fn write(&mut self, row: &T) -> Result<(), CsvError> {
-        self.csv
-            .serialize(row)
-            .map_err(|e| csv_write_error(&self.name, e))
+        if let RowState::Fresh(_) = self.state {
+            if let RowState::Fresh(out) = std::mem::replace(&mut self.state, RowState::Moving) {
+                self.state = RowState::Rows(Box::new(
+                    csv::WriterBuilder::new().has_headers(true).from_writer(out),
+                ));
+            }
+        }
+        match &mut self.state {
+            RowState::Rows(csv) => csv
+                .serialize(row)
+                .map_err(|e| csv_write_error(&self.name, e)),
+            _ => Err(self.mixed()),
+        }
+    }
+
+    fn mixed(&self) -> CsvError {
+        CsvError::Write {
+            file: self.name.clone(),
+            source: std::io::Error::new(
+                std::io::ErrorKind::InvalidInput,
+                "RowWriter: write and write_encoded cannot be mixed on one output",
+            ),
+        }
     }
 
     /// Flushes, closes and renames the output into place.
     pub fn finish(self) -> Result<(), CsvError> {
-        finish_csv(self.csv, &self.name)
+        match self.state {
+            RowState::Fresh(out) | RowState::Encoded(out) => out.commit(),
+            RowState::Rows(csv) => finish_csv(*csv, &self.name),
+            RowState::Moving => Err(self.mixed()),
+        }
     }
+}
+
+impl<T: Serialize + Default> RowWriter<T> {
+    /// Writes rows that [`encode_rows`] already turned into CSV text
+    /// (typically on worker threads, so that formatting runs in parallel
+    /// and the writer only copies bytes). The header, taken from
+    /// `T::default()`'s field names, is written before the first non-empty
+    /// block, so the file is byte for byte what [`write`](Self::write)
+    /// would give for the same rows. Not to be mixed with `write` on the
+    /// same writer (an error).
+    ///
+    /// ```
+    /// #[derive(Default, serde::Serialize)]
+    /// struct Row { event: u64, m_top: f64 }
+    /// let dir = tempfile::tempdir().unwrap();
+    /// let path = dir.path().join("out.csv");
+    /// let block = quarry_csv::encode_rows(&[Row { event: 1, m_top: 172.5 }]).unwrap();
+    /// let mut w = quarry_csv::RowWriter::<Row>::create(&path).unwrap();
+    /// w.write_encoded(&block).unwrap();
+    /// w.write_encoded(&[]).unwrap();
+    /// w.finish().unwrap();
+    /// assert_eq!(std::fs::read_to_string(&path).unwrap(), "event,m_top\n1,172.5\n");
+    /// ```
+    pub fn write_encoded(&mut self, block: &[u8]) -> Result<(), CsvError> {
+        use std::io::Write;
+        if block.is_empty() {
+            return Ok(());
+        }
+        if let RowState::Fresh(_) = self.state {
+            // csv writes the header with the first serialized row: take it
+            // from a default row, so that it is the same bytes.
+            let mut both = csv::WriterBuilder::new()
+                .has_headers(true)
+                .from_writer(Vec::new());
+            both.serialize(T::default())
+                .map_err(|e| csv_write_error(&self.name, e))?;
+            let both = both.into_inner().map_err(|e| CsvError::Write {
+                file: self.name.clone(),
+                source: std::io::Error::new(e.error().kind(), e.error().to_string()),
+            })?;
+            let record = encode_rows(&[T::default()])?;
+            let header = &both[..both.len() - record.len()];
+            if let RowState::Fresh(mut out) = std::mem::replace(&mut self.state, RowState::Moving) {
+                out.write_all(header).map_err(|source| CsvError::Write {
+                    file: self.name.clone(),
+                    source,
+                })?;
+                self.state = RowState::Encoded(out);
+            }
+        }
+        match &mut self.state {
+            RowState::Encoded(out) => out.write_all(block).map_err(|source| CsvError::Write {
+                file: self.name.clone(),
+                source,
+            }),
+            _ => Err(self.mixed()),
+        }
+    }
+}
+
+/// Turns rows into CSV records (no header) in memory, exactly as
+/// [`RowWriter::write`] would write them; the block goes to
+/// [`RowWriter::write_encoded`]. Lets worker threads format rows in
+/// parallel.
+///
+/// ```
+/// #[derive(serde::Serialize)]
+/// struct Row { event: u64, status: &'static str }
+/// let block = quarry_csv::encode_rows(&[Row { event: 1, status: "a,b" }]).unwrap();
+/// assert_eq!(block, b"1,\"a,b\"\n");
+/// ```
+pub fn encode_rows<T: Serialize>(rows: &[T]) -> Result<Vec<u8>, CsvError> {
+    let mut csv = csv::WriterBuilder::new()
+        .has_headers(false)
+        .buffer_capacity(4096)
+        .from_writer(Vec::new());
+    for row in rows {
+        csv.serialize(row)
+            .map_err(|e| csv_write_error("<memory>", e))?;
+    }
+    csv.into_inner().map_err(|e| CsvError::Write {
+        file: "<memory>".to_string(),
+        source: std::io::Error::new(e.error().kind(), e.error().to_string()),
+    })
 }
