@@ -4,9 +4,7 @@
 use std::path::PathBuf;
 
 use quarry::assign::{BtagPolicy, SearchConfig};
-use quarry::csv::{
-    encode_rows, BadReason, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, RowWriter,
-};
+use quarry::csv::{BadReason, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, RowWriter};
 use quarry::event::Selection;
 use quarry::output::Row;
 use quarry::stream::{ordered_chunked_map, Shard};
@@ -163,10 +161,11 @@ fn outcome_of(
         return Outcome::OtherShard;
     }
     let (rows, bad) = rows_of(worker, pipeline, ordinal, record);
-    match encode_rows(&rows) {
-        Ok(bytes) => Outcome::Rows(bytes, rows.iter().map(|r| r.status).collect(), bad),
-        Err(e) => Outcome::Stop(Failure::Output(e.to_string())),
+    let mut bytes = Vec::with_capacity(256 * rows.len());
+    for row in &rows {
+        row.write_csv(&mut bytes);
     }
+    Outcome::Rows(bytes, rows.iter().map(|r| r.status).collect(), bad)
 }
 
 /// The rows of one record, and the reader's reason if it was rejected.

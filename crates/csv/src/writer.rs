@@ -421,3 +421,104 @@ pub fn encode_rows<T: Serialize>(rows: &[T]) -> Result<Vec<u8>, CsvError> {
         source: std::io::Error::new(e.error().kind(), e.error().to_string()),
     })
 }
+
+/// Builds one CSV record in memory field by field, byte for byte as the
+/// csv crate's serde serializer behind [`RowWriter::write`] and
+/// [`encode_rows`] writes it: a field is quoted only when it holds `,`,
+/// `"`, CR or LF (quotes doubled inside), floats take ryu's shortest
+/// round-tripping form, `None` is an empty field. For hot row types that
+/// format themselves without serde's per-field dispatch; the result goes
+/// to [`RowWriter::write_encoded`].
+///
+/// ```
+/// let mut out = Vec::new();
+/// let mut r = quarry_csv::RecordText::new(&mut out);
+/// r.uint(Some(7));
+/// r.text("a,b");
+/// r.float(Some(172.5));
+/// r.float(None);
+/// r.end();
+/// assert_eq!(out, b"7,\"a,b\",172.5,\n");
+/// ```
+pub struct RecordText<'a> {
+    out: &'a mut Vec<u8>,
+    start: usize,
+    fields: usize,
+}
+
+impl<'a> RecordText<'a> {
+    /// Starts a record at the end of `out`.
+    pub fn new(out: &'a mut Vec<u8>) -> RecordText<'a> {
+        let start = out.len();
+        RecordText {
+            out,
+            start,
+            fields: 0,
+        }
+    }
+
+    fn delimit(&mut self) {
+        if self.fields > 0 {
+            self.out.push(b',');
+        }
+        self.fields += 1;
+    }
+
+    /// A text field, quoted if it needs to be.
+    pub fn text(&mut self, s: &str) {
+        self.delimit();
+        let bytes = s.as_bytes();
+        if bytes
+            .iter()
+            .any(|&b| matches!(b, b',' | b'"' | b'\n' | b'\r'))
+        {
+            self.out.push(b'"');
+            for &b in bytes {
+                if b == b'"' {
+                    self.out.push(b'"');
+                }
+                self.out.push(b);
+            }
+            self.out.push(b'"');
+        } else {
+            self.out.extend_from_slice(bytes);
+        }
+    }
+
+    /// A float field (empty for `None`).
+    pub fn float(&mut self, x: Option<f64>) {
+        self.delimit();
+        if let Some(x) = x {
+            self.out
+                .extend_from_slice(ryu::Buffer::new().format(x).as_bytes());
+        }
+    }
+
+    /// An unsigned integer field (empty for `None`).
+    pub fn uint(&mut self, x: Option<u64>) {
+        self.delimit();
+        if let Some(mut x) = x {
+            let mut digits = [0u8; 20];
+            let mut i = digits.len();
+            loop {
+                i -= 1;
+                digits[i] = b'0' + (x % 10) as u8;
+                x /= 10;
+                if x == 0 {
+                    break;
+                }
+            }
+            self.out.extend_from_slice(&digits[i..]);
+        }
+    }
+
+    /// Ends the record with its terminator.
+    pub fn end(self) {
+        // csv quotes a record made of one empty field, so that it is not
+        // read back as an empty line.
+        if self.fields == 1 && self.out.len() == self.start {
+            self.out.extend_from_slice(b"\"\"");
+        }
+        self.out.push(b'\n');
+    }
+}

@@ -254,3 +254,47 @@ fn encoded_blocks_write_the_same_bytes_as_rows() {
     w.write(&rows[0]).unwrap();
     assert!(w.write_encoded(b"1,x,\n").is_err());
 }
+
+#[derive(serde::Serialize)]
+struct OneText {
+    text: String,
+}
+
+/// `RecordText` quotes and terminates fields as the csv crate does
+/// (the reference), including its one-empty-field record.
+#[test]
+fn record_text_matches_the_csv_crate() {
+    for text in [
+        "",
+        "plain",
+        "a,b",
+        "say \"hi\"",
+        "cr\rlf\n",
+        " spaced ",
+        "é;=",
+    ] {
+        let mut ours = Vec::new();
+        let mut r = quarry_csv::RecordText::new(&mut ours);
+        r.text(text);
+        r.end();
+        let reference = quarry_csv::encode_rows(&[OneText {
+            text: text.to_string(),
+        }])
+        .unwrap();
+        assert_eq!(ours, reference, "{text:?}");
+    }
+    let mut ours = Vec::new();
+    let mut r = quarry_csv::RecordText::new(&mut ours);
+    r.uint(Some(u64::MAX));
+    r.uint(Some(0));
+    r.float(Some(0.0));
+    r.float(Some(1e16));
+    r.float(Some(-2.5e-7));
+    r.float(None);
+    r.end();
+    assert_eq!(ours, b"18446744073709551615,0,0.0,1e16,-2.5e-7,\n");
+    let reference =
+        quarry_csv::encode_rows(&[(u64::MAX, 0u8, 0.0f64, 1e16f64, -2.5e-7f64, None::<f64>)])
+            .unwrap();
+    assert_eq!(ours, reference);
+}
