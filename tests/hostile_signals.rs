@@ -5,11 +5,9 @@
 //! `.NAME.tmp-PID-N` (docs/csv-format.md), and renames it into place only
 //! after the last row. A process killed by SIGKILL runs no code at all, so
 //! **its temporary file stays behind**; it is hidden (leading dot) and its
-//! name says what it is, so a cleanup job can match it. The same holds for
-//! SIGTERM and SIGINT as long as `quarry` installs no handler for them (the
-//! default action ends the process at once); the tests accept the
-//! temporary file being removed too, so they stay valid if a handler that
-//! cleans up is added.
+//! name says what it is, so a cleanup job can match it. SIGTERM (what batch
+//! systems send before a kill) and SIGINT are handled: the run stops after
+//! the current event, removes its temporary file and exits with code 4.
 #![cfg(unix)]
 
 use std::path::Path;
@@ -136,6 +134,14 @@ fn kill_mid_run(signal: &str) {
         "{signal}: a killed run left output under the final name"
     );
     let left = other_files(dir.path());
+    // SIGTERM and SIGINT are handled: the run drops its writer, which
+    // removes the temporary file. Only SIGKILL can leave it behind.
+    if signal != "KILL" {
+        assert!(
+            left.is_empty(),
+            "{signal}: the handled signal left files behind: {left:?}"
+        );
+    }
     for name in &left {
         assert!(
             is_temp_name(name, pid),

@@ -17,6 +17,8 @@ macro_rules! exit_codes_help {
   2  input error: an input cannot be opened or read, has no usable header,
      or (under --on-bad stop) holds a bad event
   3  output error: the output cannot be created or written
+  4  interrupted by SIGINT or SIGTERM (reco): nothing is left under the
+     output name
 "
     };
 }

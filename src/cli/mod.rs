@@ -17,6 +17,8 @@ pub enum Failure {
     Input(String),
     /// The output cannot be created or written.
     Output(String),
+    /// SIGINT or SIGTERM arrived; the output was not committed.
+    Interrupted(String),
 }
 
 impl Failure {
@@ -26,18 +28,22 @@ impl Failure {
     pub const INPUT: u8 = 2;
     /// Exit code of an output error.
     pub const OUTPUT: u8 = 3;
+    /// Exit code of a run stopped by SIGINT or SIGTERM.
+    pub const INTERRUPTED: u8 = 4;
 
     pub fn code(&self) -> u8 {
         match self {
             Failure::Usage(_) => Self::USAGE,
             Failure::Input(_) => Self::INPUT,
             Failure::Output(_) => Self::OUTPUT,
+            Failure::Interrupted(_) => Self::INTERRUPTED,
         }
     }
 
     /// The message, on one line.
     pub fn message(&self) -> String {
-        let (Failure::Usage(m) | Failure::Input(m) | Failure::Output(m)) = self;
+        let (Failure::Usage(m) | Failure::Input(m) | Failure::Output(m) | Failure::Interrupted(m)) =
+            self;
         m.replace('\n', " ")
     }
 }

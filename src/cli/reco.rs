@@ -2,6 +2,8 @@
 //! event per hypothesis, in input order.
 
 use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 
 use quarry::assign::{BtagPolicy, SearchConfig};
 use quarry::csv::{BadReason, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, RowWriter};
@@ -212,6 +214,23 @@ pub fn check_output(path: &std::path::Path) -> Result<(), Failure> {
     }
 }
 
+/// Turns SIGINT and SIGTERM (what batch systems send before killing a job)
+/// into a flag the writing loop checks after every event, so an interrupted
+/// run drops its writer and removes its temporary file instead of leaving it
+/// behind. A second signal ends the process at once, for a run blocked on
+/// its input. Without a handler (it could not be installed) the default
+/// action still ends the run, leaving only the hidden temporary file.
+fn stop_on_signal() -> Arc<AtomicBool> {
+    let flag = Arc::new(AtomicBool::new(false));
+    let seen = Arc::clone(&flag);
+    let _ = ctrlc::set_handler(move || {
+        if seen.swap(true, Ordering::Relaxed) {
+            std::process::exit(i32::from(Failure::INTERRUPTED));
+        }
+    });
+    flag
+}
+
 pub fn run(args: &RecoArgs) -> Result<(), Failure> {
     let stdin_uses = args.inputs.iter().filter(|p| p.as_os_str() == "-").count();
     if stdin_uses > 1 {
@@ -238,6 +257,7 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
         warned: 0,
         quiet: args.quiet,
     };
+    let interrupted = stop_on_signal();
     let mut read = 0u64;
     let mut writer: RowWriter<Row> =
         RowWriter::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
@@ -250,6 +270,11 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             || pipeline.worker(),
             |worker, item| outcome_of(worker, &pipeline, policy, item),
             |outcome| {
+                if interrupted.load(Ordering::Relaxed) {
+                    return Err(Failure::Interrupted(
+                        "interrupted by a signal (SIGINT or SIGTERM)".into(),
+                    ));
+                }
                 read += 1;
                 let (bytes, statuses, bad) = match outcome {
                     Outcome::Rows(bytes, statuses, bad) => (bytes, statuses, bad),
