@@ -19,6 +19,7 @@
 mod error;
 mod output;
 mod reader;
+mod seen;
 mod writer;
 
 pub use error::{BadEvent, BadReason, CsvError, FieldError};

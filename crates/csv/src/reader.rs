@@ -1,6 +1,6 @@
 //! The streaming event reader.
 
-use std::collections::{BTreeMap, HashSet};
+use std::collections::BTreeMap;
 use std::f64::consts::PI;
 use std::fmt;
 use std::fs::File;
@@ -11,6 +11,8 @@ use std::sync::Arc;
 use flate2::read::MultiGzDecoder;
 use quarry_event::{Event, FatJet, Flavour, Jet, Lepton, Met, Truth};
 use quarry_lorentz::FourMomentum;
+
+use crate::seen::SeenIds;
 
 use crate::{BadEvent, BadReason, CsvError, FieldError};
 
@@ -419,8 +421,10 @@ impl Parser {
 /// an `event` id — [`Record::Good`] or [`Record::Bad`] — and at most one
 /// `Err(CsvError)` for a broken stream, after which it yields `None`. Memory
 /// stays bounded by one row plus one event (at most
-/// [`ReadOptions::max_objects_per_event`] objects), plus 8 bytes per event id
-/// seen: the reader keeps a set of ids to reject an id that reappears later.
+/// [`ReadOptions::max_objects_per_event`] objects), plus the set of event
+/// ids seen, kept to reject an id that reappears later. That set stores runs
+/// of consecutive ids: constant for files numbered in order, about 40 bytes
+/// per event for arbitrary ids.
 ///
 /// ```
 /// use quarry_csv::{EventReader, ReadOptions, Record};
@@ -447,7 +451,7 @@ pub struct EventReader {
     parser: Arc<Parser>,
     row: Row,
     current: Option<RawEvent>,
-    seen: HashSet<u64>,
+    seen: SeenIds,
     summary: ReadSummary,
     warnings: Vec<String>,
     fatal: Option<CsvError>,
@@ -547,7 +551,7 @@ impl EventReader {
             parser,
             row: Row::default(),
             current: None,
-            seen: HashSet::new(),
+            seen: SeenIds::default(),
             summary: ReadSummary::default(),
             warnings,
             fatal: None,
@@ -731,7 +735,7 @@ impl EventReader {
             let buf = &self.lines.buf;
             // Only a line with quotes (or cut short) needs the full split
             // here; otherwise the event field is found by counting commas.
-            let (field, syntax) = if too_long || buf.contains(&b'"') {
+            let (field, syntax) = if too_long || memchr::memchr(b'"', buf).is_some() {
                 let syntax = self.row.split(buf).err().map(str::to_string);
                 let syntax = if too_long {
                     Some(format!("line longer than {MAX_LINE_BYTES} bytes"))
@@ -1342,31 +1346,42 @@ impl Lines {
     /// [`MAX_LINE_BYTES`] (`buf` then holds its start).
     fn next_line(&mut self) -> io::Result<Option<bool>> {
         self.buf.clear();
-        let n = (&mut self.input)
-            .take(MAX_LINE_BYTES as u64 + 1)
-            .read_until(b'\n', &mut self.buf)?;
-        if n == 0 {
+        // fill_buf + memchr rather than `read_until`: the reader thread is
+        // the serial part of a run, and std's byte search was its largest
+        // cost.
+        let mut seen_any = false;
+        let mut too_long = false;
+        loop {
+            let avail = match self.input.fill_buf() {
+                Ok(a) => a,
+                Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
+                Err(e) => return Err(e),
+            };
+            if avail.is_empty() {
+                break;
+            }
+            seen_any = true;
+            let (chunk, used, done) = match memchr::memchr(b'\n', avail) {
+                Some(i) => (&avail[..i], i + 1, true),
+                None => (avail, avail.len(), false),
+            };
+            let room = (MAX_LINE_BYTES + 1).saturating_sub(self.buf.len());
+            if chunk.len() > room {
+                too_long = true;
+            }
+            self.buf.extend_from_slice(&chunk[..chunk.len().min(room)]);
+            self.input.consume(used);
+            if done {
+                break;
+            }
+        }
+        if !seen_any {
             return Ok(None);
         }
         self.line_no += 1;
-        let mut too_long = false;
-        if self.buf.last() == Some(&b'\n') {
-            self.buf.pop();
-        } else if self.buf.len() > MAX_LINE_BYTES {
+        if too_long || self.buf.len() > MAX_LINE_BYTES {
             too_long = true;
             self.buf.truncate(MAX_LINE_BYTES);
-            loop {
-                let avail = self.input.fill_buf()?;
-                if avail.is_empty() {
-                    break;
-                }
-                if let Some(i) = avail.iter().position(|&b| b == b'\n') {
-                    self.input.consume(i + 1);
-                    break;
-                }
-                let len = avail.len();
-                self.input.consume(len);
-            }
         }
         if self.buf.last() == Some(&b'\r') {
             self.buf.pop();
@@ -1377,6 +1392,15 @@ impl Lines {
         }
         Ok(Some(too_long))
     }
+}
+
+/// The high bit of each byte of `word` that equals `byte`, exactly (no
+/// false positives from borrows: the low seven bits are added separately).
+#[inline(always)]
+fn bytes_equal_to(word: u64, byte: u8) -> u64 {
+    const LOW7: u64 = 0x7F7F_7F7F_7F7F_7F7F;
+    let x = word ^ (u64::from(byte) * 0x0101_0101_0101_0101);
+    !(((x & LOW7) + LOW7) | x | LOW7)
 }
 
 fn is_blank_or_comment(line: &[u8]) -> bool {
@@ -1419,16 +1443,33 @@ impl Row {
             }
             (a, b)
         };
+        // Eight bytes at a time (fields are ~10 bytes, too short for
+        // memchr's per-call setup): the split was the reader's largest
+        // single cost when done byte by byte.
         let mut start = 0;
         let mut quoted = false;
-        for (i, &c) in line.iter().enumerate() {
-            if c == b',' {
-                self.spans.push(trimmed(start, i));
-                start = i + 1;
-            } else if c == b'"' {
+        let mut base = 0;
+        while base < n {
+            let word = match line.get(base..base + 8) {
+                Some(eight) => u64::from_le_bytes(eight.try_into().unwrap_or([b' '; 8])),
+                None => {
+                    let mut tail = [b' '; 8];
+                    tail[..n - base].copy_from_slice(&line[base..]);
+                    u64::from_le_bytes(tail)
+                }
+            };
+            if bytes_equal_to(word, b'"') != 0 {
                 quoted = true;
                 break;
             }
+            let mut commas = bytes_equal_to(word, b',');
+            while commas != 0 {
+                let i = base + (commas.trailing_zeros() / 8) as usize;
+                commas &= commas - 1;
+                self.spans.push(trimmed(start, i));
+                start = i + 1;
+            }
+            base += 8;
         }
         if !quoted {
             self.spans.push(trimmed(start, n));
