@@ -21,6 +21,11 @@ use quarry::toy::{Generator, ToyConfig};
 use quarry::Pipeline;
 use rayon::prelude::*;
 
+// The allocator of the `quarry` binary (see src/main.rs), so the figure is
+// the command line's.
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 const EVENTS: usize = 20_000;
 
 /// A `Read` over shared bytes, so every iteration reads the same buffer
