@@ -99,7 +99,7 @@ fn bench(c: &mut Criterion) {
             pool.install(|| {
                 ordered_chunked_map(
                     raw,
-                    4096,
+                    quarry::stream::DEFAULT_CHUNK,
                     || pipeline.worker(),
                     |w, (ordinal, raw)| {
                         let rows = match raw.parse() {

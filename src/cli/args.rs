@@ -175,7 +175,7 @@ pub struct RecoArgs {
     pub on_bad: OnBad,
 
     /// Events per parallel chunk (bounds memory).
-    #[arg(long, default_value_t = 4096, value_name = "N")]
+    #[arg(long, default_value_t = quarry::stream::DEFAULT_CHUNK, value_name = "N")]
     pub chunk_size: usize,
 
     /// Treat inputs as already selected: apply no object thresholds.

@@ -276,7 +276,8 @@ impl Met {
     /// assert_eq!(quarry_event::Met::new(0.0, -2.0).pt(), 2.0);
     /// ```
     pub fn pt(&self) -> f64 {
-        self.px.hypot(self.py)
+        // The four-vector crate's guarded √(px² + py²).
+        FourMomentum::new(self.px, self.py, 0.0, 0.0).pt()
     }
 
     /// Azimuth in (−π, π].
