@@ -431,3 +431,81 @@ fn several_inputs_form_one_stream_and_gzip_output_works() {
         .collect();
     assert_eq!(got, want);
 }
+
+/// `--btag-mode`, `--best` and `--max-jets` reach the search.
+#[test]
+fn btag_mode_best_and_max_jets_options() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = generate(
+        dir.path(),
+        "bw.csv",
+        &[
+            "-p", "vlq-t", "-m", "1000", "-d", "bW", "-n", "300", "--seed", "5",
+        ],
+    );
+    let run = |name: &str, extra: &[&str]| {
+        let out = dir.path().join(name);
+        let mut args = vec!["reco", s(&input), "-H", "bwbw-ljets", "-o", s(&out), "-q"];
+        args.extend_from_slice(extra);
+        ok(&args);
+        let rows = rows(&out);
+        assert_eq!(rows.len(), 300);
+        rows
+    };
+    let count_ok =
+        |rows: &[BTreeMap<String, String>]| rows.iter().filter(|r| r["status"] == "ok").count();
+    // Threshold mode needs two tagged jets for the two b roles; weighted
+    // mode lets any jet fill them at a χ² cost, so more events reconstruct.
+    let threshold = run("threshold.csv", &[]);
+    let weighted = run("weighted.csv", &["--btag-mode", "weighted"]);
+    let ignore = run("ignore.csv", &["--btag-mode", "ignore"]);
+    assert!(
+        count_ok(&weighted) > count_ok(&threshold),
+        "weighted {} vs threshold {}",
+        count_ok(&weighted),
+        count_ok(&threshold)
+    );
+    assert!(count_ok(&ignore) >= count_ok(&weighted));
+    // Without b-tag terms the χ² can only be lower or equal: the weighted
+    // search's best assignment is also a candidate of the ignoring search.
+    for (w, i) in weighted.iter().zip(&ignore) {
+        if w["status"] == "ok" && i["status"] == "ok" {
+            assert!(num(i, "chi2") <= num(w, "chi2") * (1.0 + 1e-12) + 1e-12);
+        }
+    }
+    // Fitting the 3 best assignments and keeping the best fit never ends
+    // with a worse fit χ² than fitting only the first one.
+    let best1 = run("best1.csv", &["--best", "1", "--fit"]);
+    let best3 = run("best3.csv", &["--best", "3", "--fit"]);
+    let mut better = 0;
+    for (a, b) in best1.iter().zip(&best3) {
+        if a["status"] == "ok" && b["status"] == "ok" {
+            assert!(num(b, "fit_chi2") <= num(a, "fit_chi2") * (1.0 + 1e-9) + 1e-9);
+            better += usize::from(num(b, "fit_chi2") < num(a, "fit_chi2") * (1.0 - 1e-6));
+        }
+    }
+    assert!(better > 0, "the 2nd/3rd assignments never fitted better");
+    // Fewer jets entering: at most as many assignments evaluated.
+    let four = run("four.csv", &["--max-jets", "4"]);
+    for (a, b) in threshold.iter().zip(&four) {
+        if a["status"] == "ok" && b["status"] == "ok" {
+            assert!(num(b, "n_evaluated") <= num(a, "n_evaluated"));
+        }
+    }
+    // Bad values are usage errors naming the option.
+    for (args, needle) in [
+        (vec!["--best", "0"], "--best"),
+        (
+            vec!["--btag-mode", "weighted", "--mistag-rate", "0.9"],
+            "--mistag-rate",
+        ),
+        (vec!["--max-jets", "2"], "max_jets"),
+    ] {
+        let mut all = vec!["reco", s(&input), "-H", "bwbw-ljets", "-o", "-", "-q"];
+        all.extend_from_slice(&args);
+        let out = quarry(&all);
+        assert_eq!(out.status.code(), Some(1), "{args:?}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(needle), "{args:?}: {err}");
+    }
+}

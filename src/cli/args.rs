@@ -66,7 +66,7 @@ const EVAL_HELP: &str = concat!(
     "  quarry eval -s T1000@1000=t1000-reco.csv -s ttbar=tt-reco.csv -o summary.csv --plots plots/\n",
     "  # Markdown table of right-assignment fraction and mass resolution\n",
     "  quarry eval -s T600@600=a.csv -s T1000@1000=b.csv -o /dev/null --table -\n\n",
-    "Inputs are `quarry reco` outputs (plain CSV; columns found by name). A sample\n",
+    "Inputs are `quarry reco` outputs (CSV, plain or gzip; columns found by name). A sample\n",
     "with @MASS is signal generated at that mass [GeV]; without, background.\n",
     "Metric definitions: docs/eval.md.\n\n",
     exit_codes_help!(),
@@ -114,7 +114,9 @@ const RECO_HELP: &str = concat!(
     "  # two hypotheses plus the kinematic fit; read stdin, write stdout\n",
     "  zcat events.csv.gz | quarry reco - -H ttbar-ljets -H my-hypothesis.toml --fit\n",
     "  # shard 3 of 10 of a large input (batch job array)\n",
-    "  quarry reco big.csv.gz -H ttbar-ljets --shard 3/10 -o part-3.csv\n\n",
+    "  quarry reco big.csv.gz -H ttbar-ljets --shard 3/10 -o part-3.csv\n",
+    "  # b-tag scores as χ² terms instead of a cut; keep and fit 5 assignments\n",
+    "  quarry reco signal.csv -H bwbw-ljets --btag-mode weighted --best 5 --fit\n\n",
     "Output: one row per input event per hypothesis, in input order, whatever\n",
     "--threads is. Columns are listed in docs/cli.md.\n\n",
     exit_codes_help!(),
@@ -135,6 +137,19 @@ pub enum OnBad {
     Skip,
     /// End the run at the first bad event (exit code 2).
     Stop,
+}
+
+/// How the search uses b-tag scores (see `quarry::assign::BtagPolicy`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum BtagMode {
+    /// Roles marked b take only jets above --btag-threshold, roles marked
+    /// light only jets at or below it; no χ² term.
+    Threshold,
+    /// Every jet may fill every jet role; the χ² gains −2 ln of the
+    /// tag/mistag probability (from --btag-efficiency and --mistag-rate).
+    Weighted,
+    /// Ignore b-tag scores in the search.
+    Ignore,
 }
 
 #[derive(Debug, Args)]
@@ -182,9 +197,36 @@ pub struct RecoArgs {
     #[arg(long)]
     pub no_selection: bool,
 
-    /// b-tag working point: a jet with score above it counts as b-tagged.
+    /// b-tag working point: a jet with score above it counts as b-tagged
+    /// (the selection's b-jet count, and the search's b and light roles in
+    /// `--btag-mode threshold`).
     #[arg(long, value_name = "SCORE")]
     pub btag_threshold: Option<f64>,
+
+    /// How the search uses b-tag scores.
+    #[arg(long, value_enum, default_value = "threshold")]
+    pub btag_mode: BtagMode,
+
+    /// b-jet tagging efficiency of the working point behind the scores
+    /// (`--btag-mode weighted`; typical value, from memory).
+    #[arg(long, default_value_t = 0.70, value_name = "EFF")]
+    pub btag_efficiency: f64,
+
+    /// Light-jet mistag rate of that working point (`--btag-mode weighted`;
+    /// typical value, from memory).
+    #[arg(long, default_value_t = 0.01, value_name = "RATE")]
+    pub mistag_rate: f64,
+
+    /// Number of best assignments the search keeps per event and
+    /// hypothesis (1-64); with --fit each is fitted and the best fit is
+    /// reported.
+    #[arg(long, default_value_t = 3, value_name = "K")]
+    pub best: usize,
+
+    /// Jets entering the search: the leading N by pT, replacing every
+    /// hypothesis's own `leading_jets`.
+    #[arg(long, value_name = "N")]
+    pub max_jets: Option<usize>,
 
     /// Hide the progress bar (it is hidden anyway when stderr is not a terminal).
     #[arg(long)]

@@ -12,7 +12,7 @@ use quarry::output::Row;
 use quarry::stream::{ordered_chunked_map, Shard};
 use quarry::{Pipeline, Reconstruction};
 
-use super::args::{OnBad, RecoArgs};
+use super::args::{BtagMode, OnBad, RecoArgs};
 use super::summary::{progress_bar, Summary};
 use super::Failure;
 
@@ -39,6 +39,23 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
             "--btag-threshold {btag} must be within [0, 1]"
         )));
     }
+    if !(1..=quarry::assign::MAX_K_BEST).contains(&args.best) {
+        return Err(Failure::Usage(format!(
+            "--best {} must be between 1 and {}",
+            args.best,
+            quarry::assign::MAX_K_BEST
+        )));
+    }
+    if args.btag_mode == BtagMode::Weighted
+        && !(args.mistag_rate > 0.0
+            && args.mistag_rate < args.btag_efficiency
+            && args.btag_efficiency < 1.0)
+    {
+        return Err(Failure::Usage(format!(
+            "--btag-efficiency {} and --mistag-rate {} must satisfy 0 < mistag rate < efficiency < 1",
+            args.btag_efficiency, args.mistag_rate
+        )));
+    }
     let selection = if args.no_selection {
         Selection {
             btag_threshold: btag,
@@ -54,7 +71,16 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
         .fit(args.fit)
         .selection(selection)
         .search_config(SearchConfig {
-            btag: BtagPolicy::Threshold(btag),
+            btag: match args.btag_mode {
+                BtagMode::Threshold => BtagPolicy::Threshold(btag),
+                BtagMode::Weighted => BtagPolicy::Weighted {
+                    b_efficiency: args.btag_efficiency,
+                    light_mistag: args.mistag_rate,
+                },
+                BtagMode::Ignore => BtagPolicy::Ignore,
+            },
+            k_best: args.best,
+            max_jets_override: args.max_jets,
             ..SearchConfig::default()
         });
     for h in &args.hypotheses {
