@@ -142,3 +142,33 @@ fn bad_sample_is_a_usage_error_and_missing_file_an_input_error() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("missing column 'status'"));
 }
+
+/// A gzipped reconstruction output (`reco -o x.csv.gz`) evaluates exactly
+/// like the plain one.
+#[test]
+fn gzip_reco_output_evaluates_like_plain() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    ok(
+        &[
+            "generate", "-p", "vlq-t", "-d", "bW", "-m", "1000", "-n", "300", "-s", "9", "-o",
+            "t.csv",
+        ],
+        d,
+    );
+    for out in ["t-reco.csv", "t-reco.csv.gz"] {
+        ok(&["reco", "t.csv", "-H", "bwbw-ljets", "-q", "-o", out], d);
+    }
+    let gz = std::fs::read(d.join("t-reco.csv.gz")).unwrap();
+    assert_eq!(&gz[..2], &[0x1f, 0x8b], "reco did not gzip");
+    let mut summaries = Vec::new();
+    for input in ["t-reco.csv", "t-reco.csv.gz"] {
+        let out = ok(
+            &["eval", "-s", &format!("T@1000={input}"), "-o", "-", "-q"],
+            d,
+        );
+        summaries.push(String::from_utf8(out.stdout).unwrap());
+    }
+    assert!(summaries[0].lines().count() == 2, "{}", summaries[0]);
+    assert_eq!(summaries[0], summaries[1]);
+}

@@ -2,7 +2,7 @@
 //! output of several samples, write the summary CSV, the Markdown table and
 //! the SVG plots.
 
-use std::io::{Read, Write};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use quarry::eval::{
@@ -16,12 +16,6 @@ use super::Failure;
 pub fn run(args: &EvalArgs) -> Result<(), Failure> {
     let mut records: Vec<EvalRecord> = Vec::new();
     for spec in &args.samples {
-        if is_gzip(&spec.path) {
-            return Err(Failure::Input(format!(
-                "{}: gzip input; decompress it first (zcat)",
-                spec.path.display()
-            )));
-        }
         records.extend(
             read_sample(spec, &args.mass_column).map_err(|e| Failure::Input(e.to_string()))?,
         );
@@ -104,13 +98,6 @@ fn file_stem(name: &str) -> String {
             }
         })
         .collect()
-}
-
-fn is_gzip(path: &Path) -> bool {
-    let mut magic = [0u8; 2];
-    std::fs::File::open(path)
-        .and_then(|mut f| f.read_exact(&mut magic))
-        .is_ok_and(|()| magic == [0x1f, 0x8b])
 }
 
 fn write_out(path: &Path, bytes: &[u8]) -> Result<(), Failure> {

@@ -48,12 +48,23 @@ impl std::str::FromStr for MassColumn {
 /// println!("{} rows", records.len());
 /// ```
 pub fn read_sample(spec: &SampleSpec, mass: &MassColumn) -> Result<Vec<EvalRecord>, EvalError> {
-    let file = std::fs::File::open(&spec.path).map_err(|source| EvalError::Io {
+    let io_error = |source| EvalError::Io {
         path: spec.path.clone(),
         source,
-    })?;
+    };
+    let mut input = std::io::BufReader::new(std::fs::File::open(&spec.path).map_err(io_error)?);
+    // `quarry reco -o x.csv.gz` writes gzip: recognised by its magic bytes,
+    // whatever the file is called.
+    let gzip = std::io::BufRead::fill_buf(&mut input)
+        .map_err(io_error)?
+        .starts_with(&[0x1f, 0x8b]);
+    let input: Box<dyn std::io::Read> = if gzip {
+        Box::new(flate2::read::MultiGzDecoder::new(input))
+    } else {
+        Box::new(input)
+    };
     read_records(
-        std::io::BufReader::new(file),
+        input,
         &spec.path.display().to_string(),
         &spec.name,
         spec.generated_mass,
