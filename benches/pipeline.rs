@@ -23,6 +23,7 @@ use rayon::prelude::*;
 
 // The allocator of the `quarry` binary (see src/main.rs), so the figure is
 // the command line's.
+#[cfg(feature = "mimalloc")]
 #[global_allocator]
 static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
 

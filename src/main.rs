@@ -16,8 +16,10 @@ mod cli;
 /// arenas turned that into lock traffic and heap trimming (measured with
 /// strace: thousands of mprotect calls per 200 k events, and more system
 /// time than the second core gained). mimalloc frees cross-thread blocks
-/// without a shared lock. The library crates leave the choice to their
-/// users.
+/// without a shared lock. It is the `mimalloc` feature (on by default);
+/// Rust programs that embed the library can turn it off and keep their own
+/// allocator, since only this binary sets it.
+#[cfg(feature = "mimalloc")]
 #[global_allocator]
 static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
 
