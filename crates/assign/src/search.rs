@@ -12,6 +12,8 @@ use crate::{
 
 /// Marks an unfilled slot in the search's compact choice arrays.
 const NONE: u8 = u8::MAX;
+
+mod pair_join;
 /// Room for every jet plus the "no large jet" option.
 const MAX_CANDS: usize = MAX_JETS + 1;
 
@@ -572,6 +574,8 @@ struct Join {
     /// Which addition is the equal-mass term (known only with the closed
     /// mass).
     eq_slot: usize,
+    /// The open side's dedicated list builder, if it has that shape.
+    lepton_side: Option<pair_join::LeptonSide>,
 }
 
 /// Largest estimated number of fillings (see `Plan::new`) of a side that
@@ -635,6 +639,8 @@ struct Plan {
     joins: Vec<Join>,
     /// Lepton roles the neutrino may come from (at most one).
     nu_lepton: Option<usize>,
+    /// The shape with a dedicated path, if the plan has it.
+    pair_join: Option<pair_join::PairJetJoin>,
 }
 
 fn kind_rank(k: &RoleKind) -> u8 {
@@ -935,7 +941,7 @@ impl Plan {
         for (c, comp) in comps.iter().enumerate() {
             template.leaf_masks[c] = comp.leaf_mask;
         }
-        Plan {
+        let mut plan = Plan {
             steps,
             template,
             comp_ops,
@@ -945,7 +951,13 @@ impl Plan {
                 RoleKind::Neutrino { lepton } => Some(lepton),
                 _ => None,
             }),
+            pair_join: None,
+        };
+        plan.pair_join = pair_join::PairJetJoin::detect(&plan);
+        for i in 0..plan.joins.len() {
+            plan.joins[i].lepton_side = pair_join::LeptonSide::detect(&plan, &plan.joins[i]);
         }
+        plan
     }
 
     /// The joins of the equal-mass constraints (see [`Join`]): for those
@@ -1031,6 +1043,7 @@ impl Plan {
                 open_steps,
                 n_incr,
                 eq_slot,
+                lepton_side: None,
             });
         }
         out
@@ -1108,6 +1121,8 @@ struct Workspace {
     evaluated: Evaluated,
     // Scratch for sorting the input jets.
     sort_scratch: Vec<(f64, u32)>,
+    /// Scored pairs of the [`pair_join`] path (empty for other plans).
+    pairs: Vec<pair_join::ScoredPair>,
 }
 
 /// A reusable search engine for one hypothesis and configuration.
@@ -1212,6 +1227,11 @@ impl Searcher {
             prune: config.prune,
             evaluated: Evaluated::default(),
             sort_scratch: Vec::with_capacity(64),
+            pairs: Vec::with_capacity(if plan.pair_join.is_some() {
+                pair_join::MAX_PAIRS
+            } else {
+                0
+            }),
         });
         Ok(Searcher {
             hyp: hyp.clone(),
@@ -1334,7 +1354,10 @@ impl Searcher {
         // The join lists are read-only during the search: moved out of the
         // workspace meanwhile, so the search can borrow them beside it.
         let lists = std::mem::take(&mut ws.lists);
-        ws.dfs(hyp, plan, &lists, 0, 0.0, Occupancy::default());
+        match (&plan.pair_join, self.config.prune) {
+            (Some(k), true) => ws.pair_join(k, hyp, plan, &lists),
+            _ => ws.dfs(hyp, plan, &lists, 0, 0.0, Occupancy::default()),
+        }
         ws.lists = lists;
         if !ws.best.is_empty() {
             SearchStatus::Found
@@ -1369,6 +1392,27 @@ pub fn search_all(
         .par_iter()
         .map_init(|| proto.clone(), |s, e| s.search(e))
         .collect())
+}
+
+/// Sorts a join's list by mass. Lists are short (a dozen fillings for a bW
+/// pair's leptonic side), where a plain insertion sort on the mass alone
+/// beats the general sort; long ones use the general sort. Masses are never
+/// NaN (those fillings are left out), so `<` is a total order up to the sign
+/// of zero, which the walk does not distinguish.
+fn sort_by_mass(entries: &mut [JoinEntry]) {
+    if entries.len() > 32 {
+        entries.sort_unstable_by(|a, b| a.mass.total_cmp(&b.mass));
+        return;
+    }
+    for i in 1..entries.len() {
+        let e = entries[i];
+        let mut j = i;
+        while j > 0 && e.mass < entries[j - 1].mass {
+            entries[j] = entries[j - 1];
+            j -= 1;
+        }
+        entries[j] = e;
+    }
 }
 
 /// Invariant mass from `E² − |p|²` with one square root (the search's
@@ -1466,6 +1510,21 @@ impl Workspace {
     }
 
     fn build_candidates(&mut self, plan: &Plan, btag: &BtagPolicy) {
+        // Per b-tag row (any, b, light): the jets admitted and their
+        // smallest b-tag term, found in one pass over the jets.
+        let mut jets_of = [0u64; 3];
+        let mut pen_min = [f64::INFINITY; 3];
+        for j in 0..self.n_jets {
+            for (row, tag) in [TagRule::Any, TagRule::B, TagRule::Light]
+                .into_iter()
+                .enumerate()
+            {
+                if btag.admits(tag, self.jet_score[j]) {
+                    jets_of[row] |= 1 << j;
+                    pen_min[row] = pen_min[row].min(self.pen[row][j]);
+                }
+            }
+        }
         for (d, step) in plan.steps.iter().enumerate() {
             let mut mask = 0u64;
             let mut row = 0;
@@ -1476,11 +1535,7 @@ impl Workspace {
                         TagRule::B => 1,
                         TagRule::Light => 2,
                     };
-                    for j in 0..self.n_jets {
-                        if btag.admits(tag, self.jet_score[j]) {
-                            mask |= 1 << j;
-                        }
-                    }
+                    mask = jets_of[row];
                 }
                 StepKind::Lepton(flav, charge) => {
                     for l in 0..self.n_leps {
@@ -1511,12 +1566,7 @@ impl Workspace {
             let step = &plan.steps[d];
             let mut min_here = f64::INFINITY;
             if step.skip_if.is_none() && matches!(step.kind, StepKind::Jet(_)) {
-                let mut m = self.cand_mask[d];
-                while m != 0 {
-                    let j = m.trailing_zeros() as usize;
-                    m &= m - 1;
-                    min_here = min_here.min(self.pen[self.pen_row[d]][j]);
-                }
+                min_here = pen_min[self.pen_row[d] % 3];
             }
             let min_here = if min_here.is_finite() { min_here } else { 0.0 };
             self.rest_min[d] = self.rest_min[d + 1] + min_here;
@@ -1615,7 +1665,7 @@ impl Workspace {
     ) -> (u64, bool) {
         if let StepKind::Neutrino { lepton } = step.kind {
             let l = self.choice[lepton] as usize;
-            return match self.nu.get(l).copied().flatten() {
+            return match self.nu.get(l).and_then(Option::as_ref) {
                 Some(s) => ((1u64 << s.len()) - 1, false),
                 None => (0, false),
             };
@@ -1941,21 +1991,25 @@ impl Workspace {
         t.incr.clear();
         t.overflow = false;
         t.stamp = self.searches;
-        let mut objs = [NONE; MAX_ROLES];
-        let mut incr = [0.0; 2 * MAX_ROLES + MAX_CONSTRAINTS];
-        self.fill_join(
-            hyp,
-            plan,
-            i,
-            0,
-            &mut objs,
-            &mut incr,
-            0,
-            Occupancy::default(),
-            &mut t,
-        );
+        if let Some(side) = &plan.joins[i].lepton_side {
+            self.fill_lepton_side(side, plan, &plan.joins[i], &mut t);
+        } else {
+            let mut objs = [NONE; MAX_ROLES];
+            let mut incr = [0.0; 2 * MAX_ROLES + MAX_CONSTRAINTS];
+            self.fill_join(
+                hyp,
+                plan,
+                i,
+                0,
+                &mut objs,
+                &mut incr,
+                0,
+                Occupancy::default(),
+                &mut t,
+            );
+        }
         if !t.overflow {
-            t.entries.sort_unstable_by(|a, b| a.mass.total_cmp(&b.mass));
+            sort_by_mass(&mut t.entries);
         }
         self.evaluated.partial += t.entries.len() as u64;
         self.lists[i] = t;
@@ -2217,17 +2271,27 @@ impl Workspace {
                         out.neutrino = self
                             .nu
                             .get(leaf.choice[lepton] as usize)
-                            .copied()
-                            .flatten()
+                            .and_then(Option::as_ref)
                             .and_then(|s| s.as_slice().get(o).copied());
                         ObjectRef::Neutrino { root: obj }
                     }
                 };
                 self.obj_p4[(self.pool(step).0 + o) % OBJ_SLOTS]
             };
-            let ops = &plan.comp_ops[step.comps.0..step.comps.1];
-            self.prepare_prefixes(ops);
-            self.close_comps(ops, role, p);
+            self.p4s[role % SLOTS] = p;
+        }
+        // Every role is placed: each composite is the left fold of its
+        // sources in `CompOp` order, as the search summed it (its prefix,
+        // then the rest), and `comp_ops` lists sources before their users.
+        for op in &plan.comp_ops {
+            let src = &op.src[..op.n.clamp(1, SLOTS)];
+            let mut p = self.p4s[src[0] as usize % SLOTS];
+            for &s in &src[1..] {
+                p += self.p4s[s as usize % SLOTS];
+            }
+            let dest = op.dest % MAX_COMPOSITES;
+            self.p4s[MAX_ROLES + dest] = p;
+            self.comp_m[dest] = fast_mass(&p);
         }
         for op in &plan.con_ops {
             out.terms[op.k % MAX_CONSTRAINTS] = op.term(&self.comp_m);
@@ -2242,6 +2306,54 @@ impl Workspace {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The dedicated paths must be taken where they apply (else the bench
+    /// and the equivalence tests would measure and check the general search
+    /// only), and nowhere else.
+    #[test]
+    fn dedicated_paths_are_taken_exactly_for_their_shape() {
+        let policies = [
+            BtagPolicy::Ignore,
+            BtagPolicy::default(),
+            BtagPolicy::weighted_default(),
+        ];
+        for name in crate::presets::names() {
+            let h = crate::presets::get(name).unwrap();
+            for btag in policies {
+                for n_jets in [h.min_jets(), 6, 8, MAX_JETS] {
+                    let plan = Plan::new(&h, n_jets.max(h.min_jets()), &btag);
+                    let lepton_sides = plan.joins.iter().filter(|j| j.lepton_side.is_some());
+                    if *name == "bwbw-ljets" {
+                        assert!(plan.pair_join.is_some(), "{name} {btag:?} {n_jets}");
+                        assert_eq!(lepton_sides.count(), 1, "{name} {btag:?} {n_jets}");
+                    } else {
+                        // Other presets' joins (tgtg-ljets has one) have
+                        // more roles on each side than these shapes.
+                        assert!(plan.pair_join.is_none(), "{name}");
+                        assert_eq!(lepton_sides.count(), 0, "{name}");
+                    }
+                }
+            }
+        }
+        // Extra mass constraints on either side keep the shape (the paths
+        // add their terms); a lepton-pair rule or a constraint spanning both
+        // sides does not.
+        let base = crate::presets::toml("bwbw-ljets").unwrap();
+        let extra = format!(
+            "{base}\n[[constraint]]\nmass = \"Q_had\"\ntarget = 900.0\nwidth = 80.0\n\n\
+             [[constraint]]\nmass = \"W_lep\"\ntarget = 70.0\nwidth = 12.0\n\n\
+             [[constraint]]\nmass = \"Q_lep\"\ntarget = 900.0\nwidth = 90.0\n"
+        );
+        let h = Hypothesis::from_toml(&extra).unwrap();
+        let plan = Plan::new(&h, 6, &BtagPolicy::Ignore);
+        assert!(plan.pair_join.is_some());
+        assert!(plan.joins[0].lepton_side.is_some());
+        let no_interchange = base.replace("[[interchangeable]]\nroles = [\"q1\", \"q2\"]\n", "");
+        assert_ne!(no_interchange, base);
+        let h = Hypothesis::from_toml(&no_interchange).unwrap();
+        let plan = Plan::new(&h, 6, &BtagPolicy::Ignore);
+        assert!(plan.pair_join.is_none());
+    }
 
     /// The join's outward walk relies on this: for a closed mass ≥ 0, the
     /// equal-mass term never decreases as the other mass moves away from it

@@ -1,0 +1,355 @@
+//! A dedicated path for the commonest joined shape: the searched side of an
+//! equal-mass constraint is a pair of interchangeable jets (a hadronic W)
+//! plus one more jet (the b), and the other side is joined from its list
+//! (see [`Join`]). This is the bW-pair lepton+jets topology.
+//!
+//! The general search fills the pair role by role: six nodes for the first
+//! jet, a sort of each one's partners, and so on. Here every pair is scored
+//! at once and sorted globally by its running χ², so the pairs are visited
+//! best first and the first pair that cannot reach the K best ends the whole
+//! search. The arithmetic is the general search's own, operation for
+//! operation (same sums in the same order, same terms, same bounds), so the
+//! K best are bit for bit those of the general search and of plain
+//! enumeration; `tests/join.rs` and `tests/search_vs_exhaustive.rs` check
+//! this on every b-tag policy.
+
+use super::*;
+
+/// Where the shape sits in a [`Plan`]; found by [`PairJetJoin::detect`].
+#[derive(Clone, Copy, Debug)]
+pub(super) struct PairJetJoin {
+    /// Roles at steps 0 and 1 (the interchangeable pair) and 2 (the extra
+    /// jet).
+    roles: [usize; 3],
+    /// The composite closed at step 1 (sum of the pair) and at step 2 (pair
+    /// composite + extra jet: the join's closed side).
+    pair: usize,
+    closed: usize,
+}
+
+/// One scored pair: running χ² after step 1, the two jets, the pair's
+/// four-vector and mass.
+#[derive(Clone, Copy, Debug)]
+pub(super) struct ScoredPair {
+    v: f64,
+    a: u8,
+    b: u8,
+    p: FourMomentum,
+    m: f64,
+}
+
+/// Most pairs of [`MAX_JETS`] jets.
+pub(super) const MAX_PAIRS: usize = MAX_JETS * (MAX_JETS - 1) / 2;
+
+impl PairJetJoin {
+    /// The shape, if the plan has it exactly: steps 0–2 are jet roles
+    /// without a large-jet alternative; step 1's role is interchangeable
+    /// with step 0's; step 0 completes nothing; step 1 completes one
+    /// composite, the sum of the two (in that order), with only plain mass
+    /// constraints on it; step 2 completes one composite, that sum plus its
+    /// jet (in that order), with only plain mass constraints on it; and a
+    /// join at step 2 has that composite as its closed side.
+    pub(super) fn detect(plan: &Plan) -> Option<PairJetJoin> {
+        let steps = plan.steps.get(..3)?;
+        let join = steps[2].join.and_then(|i| plan.joins.get(i))?;
+        for s in steps {
+            if !matches!(s.kind, StepKind::Jet(_)) || s.skip_if.is_some() {
+                return None;
+            }
+        }
+        let roles = [steps[0].role, steps[1].role, steps[2].role];
+        if steps[1].sym_role != Some(roles[0])
+            || steps[2].sym_role.is_some()
+            || steps[0].comps.0 != steps[0].comps.1
+            || steps[0].cons.0 != steps[0].cons.1
+        {
+            return None;
+        }
+        let single = |s: &Step| (s.comps.1 == s.comps.0 + 1).then(|| plan.comp_ops[s.comps.0]);
+        let (op1, op2) = (single(&steps[1])?, single(&steps[2])?);
+        let (pair, closed) = (op1.dest, op2.dest);
+        let sources = |op: &CompOp| (op.n, op.n_inv, op.src[0] as usize, op.src[1] as usize);
+        if sources(&op1) != (2, 1, roles[0], roles[1])
+            || sources(&op2) != (2, 1, MAX_ROLES + pair, roles[2])
+            || join.depth != 2
+            || join.closed != closed
+        {
+            return None;
+        }
+        let plain_on = |s: &Step, c: usize| {
+            plan.con_ops[s.cons.0..s.cons.1]
+                .iter()
+                .all(|op| op.shape == ConShape::Mass && op.a == c && !op.only_closest)
+        };
+        if !plain_on(&steps[1], pair) || !plain_on(&steps[2], closed) {
+            return None;
+        }
+        Some(PairJetJoin {
+            roles,
+            pair,
+            closed,
+        })
+    }
+}
+
+impl Workspace {
+    /// The search below the root for a plan with the [`PairJetJoin`]
+    /// shape (pruning on): replaces `dfs(…, 0, 0.0, empty)`.
+    pub(super) fn pair_join(
+        &mut self,
+        k: &PairJetJoin,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        lists: &[JoinList],
+    ) {
+        let [r0, r1, r2] = k.roles;
+        let rows = [
+            self.pen_row[0] % 3,
+            self.pen_row[1] % 3,
+            self.pen_row[2] % 3,
+        ];
+        let cons1 = &plan.con_ops[plan.steps[1].cons.0..plan.steps[1].cons.1];
+        let cons2 = &plan.con_ops[plan.steps[2].cons.0..plan.steps[2].cons.1];
+        // As `eval_cons` for plain mass constraints on one composite.
+        let add_terms = |cons: &[ConOp], m: f64, mut v: f64| {
+            for op in cons {
+                v += op.term_of(m, m);
+            }
+            if v.is_nan() {
+                f64::INFINITY
+            } else {
+                v
+            }
+        };
+        // Step 0 then step 1, as `dfs` computes them: the running χ² after
+        // step 0 is 0 + its b-tag term (no constraint closes there).
+        let mut pairs = std::mem::take(&mut self.pairs);
+        pairs.clear();
+        let mut m0 = self.cand_mask[0];
+        while m0 != 0 {
+            let a = m0.trailing_zeros() as usize;
+            m0 &= m0 - 1;
+            let v0 = 0.0 + self.pen[rows[0]][a % MAX_JETS];
+            if v0.is_nan() {
+                continue;
+            }
+            let pa = self.obj_p4[(JET_BASE + a) % OBJ_SLOTS];
+            let mut m1 =
+                self.cand_mask[1] & !(1u64 << a) & u64::MAX.checked_shl(a as u32 + 1).unwrap_or(0);
+            while m1 != 0 {
+                let b = m1.trailing_zeros() as usize;
+                m1 &= m1 - 1;
+                let p = pa + self.obj_p4[(JET_BASE + b) % OBJ_SLOTS];
+                let m = fast_mass(&p);
+                let v = add_terms(cons1, m, v0 + self.pen[rows[1]][b % MAX_JETS]);
+                if v.is_finite() {
+                    pairs.push(ScoredPair {
+                        v,
+                        a: a as u8,
+                        b: b as u8,
+                        p,
+                        m,
+                    });
+                }
+            }
+        }
+        self.evaluated.partial += pairs.len() as u64;
+        let rest2 = self.rest_min[2];
+        let rest3 = self.rest_min[3];
+        let mut partial = 0u64;
+        // Best first: the search usually ends after a few pairs, so picking
+        // the smallest remaining each time costs less than sorting them all.
+        // Ties go to the earlier pair (made in (a, b) order), so the visit
+        // order is deterministic. A visited pair's χ² becomes ∞ (every kept
+        // one is finite).
+        loop {
+            let mut best = usize::MAX;
+            let mut best_v = f64::INFINITY;
+            for (i, sp) in pairs.iter().enumerate() {
+                if sp.v < best_v {
+                    best_v = sp.v;
+                    best = i;
+                }
+            }
+            // The bound grows with v: no later pair passes either.
+            if best == usize::MAX || !self.admissible(best_v, rest2) {
+                break;
+            }
+            let sp = pairs[best];
+            pairs[best].v = f64::INFINITY;
+            let (a, b) = (sp.a as usize, sp.b as usize);
+            self.choice[r0 % MAX_ROLES] = sp.a;
+            self.choice[r1 % MAX_ROLES] = sp.b;
+            self.p4s[r0 % SLOTS] = self.obj_p4[(JET_BASE + a) % OBJ_SLOTS];
+            self.p4s[r1 % SLOTS] = self.obj_p4[(JET_BASE + b) % OBJ_SLOTS];
+            self.p4s[(MAX_ROLES + k.pair) % SLOTS] = sp.p;
+            self.comp_m[k.pair % MAX_COMPOSITES] = sp.m;
+            let used = (1u64 << a) | (1u64 << b);
+            let mut m2 = self.cand_mask[2] & !used;
+            while m2 != 0 {
+                let c = m2.trailing_zeros() as usize;
+                m2 &= m2 - 1;
+                partial += 1;
+                let pc = self.obj_p4[(JET_BASE + c) % OBJ_SLOTS];
+                let p = sp.p + pc;
+                let m = fast_mass(&p);
+                let v = add_terms(cons2, m, sp.v + self.pen[rows[2]][c % MAX_JETS]);
+                if !self.admissible(v, rest3) {
+                    continue;
+                }
+                self.choice[r2 % MAX_ROLES] = c as u8;
+                self.p4s[r2 % SLOTS] = pc;
+                self.p4s[(MAX_ROLES + k.closed) % SLOTS] = p;
+                self.comp_m[k.closed % MAX_COMPOSITES] = m;
+                let mut occ = Occupancy::default();
+                occ.used[0] = used | (1u64 << c);
+                self.descend(hyp, plan, lists, 2, v, occ);
+            }
+        }
+        self.evaluated.partial += partial;
+        self.pairs = pairs;
+    }
+}
+
+/// The other dedicated path: a join whose open side is a charged lepton,
+/// the neutrino solved from it, and one jet (the leptonic heavy quark of a
+/// bW or tW pair). Its list is built by three plain loops instead of the
+/// general replay (`fill_join`), with the same sums, terms and entries in
+/// the same order, so the list is bit for bit the general one.
+#[derive(Clone, Copy, Debug)]
+pub(super) struct LeptonSide {
+    /// Depths of the lepton, neutrino and jet steps.
+    depths: [usize; 3],
+}
+
+impl LeptonSide {
+    /// The shape, if join `la` has it exactly: its open steps are a lepton
+    /// (completing nothing), the neutrino from that lepton (completing one
+    /// composite, lepton + neutrino in that order, with only plain mass
+    /// constraints on it), and a jet (completing the open composite, that
+    /// sum + the jet in that order, with only the equal-mass constraint and
+    /// plain mass constraints on it).
+    pub(super) fn detect(plan: &Plan, la: &Join) -> Option<LeptonSide> {
+        let [dl, dn, dj] = <[usize; 3]>::try_from(la.open_steps.as_slice()).ok()?;
+        let (sl, sn, sj) = (&plan.steps[dl], &plan.steps[dn], &plan.steps[dj]);
+        if !matches!(sl.kind, StepKind::Lepton(..))
+            || sn.kind != (StepKind::Neutrino { lepton: sl.role })
+            || !matches!(sj.kind, StepKind::Jet(_))
+            || sl.sym_role.is_some()
+            || sj.sym_role.is_some()
+            || sl.comps.0 != sl.comps.1
+            || sl.cons.0 != sl.cons.1
+            || sn.comps.1 != sn.comps.0 + 1
+            || sj.comps.1 != sj.comps.0 + 1
+        {
+            return None;
+        }
+        let (opn, opj) = (plan.comp_ops[sn.comps.0], plan.comp_ops[sj.comps.0]);
+        let w = opn.dest;
+        let sources = |op: &CompOp| (op.n, op.n_inv, op.src[0] as usize, op.src[1] as usize);
+        if sources(&opn) != (2, 1, sl.role, sn.role)
+            || sources(&opj) != (2, 1, MAX_ROLES + w, sj.role)
+            || opj.dest != la.open
+        {
+            return None;
+        }
+        let plain_on =
+            |op: &ConOp, c: usize| op.shape == ConShape::Mass && op.a == c && !op.only_closest;
+        let cons_n = &plan.con_ops[sn.cons.0..sn.cons.1];
+        let cons_j = &plan.con_ops[sj.cons.0..sj.cons.1];
+        if !cons_n.iter().all(|op| plain_on(op, w))
+            || !cons_j
+                .iter()
+                .all(|op| op.k == la.eq.k || plain_on(op, la.open))
+            || la.n_incr != 3 + cons_n.len() + cons_j.len()
+        {
+            return None;
+        }
+        Some(LeptonSide {
+            depths: [dl, dn, dj],
+        })
+    }
+}
+
+impl Workspace {
+    /// `fill_join` for a join with the [`LeptonSide`] shape: the same
+    /// entries, objects and additions, in the same order.
+    pub(super) fn fill_lepton_side(
+        &mut self,
+        side: &LeptonSide,
+        plan: &Plan,
+        la: &Join,
+        t: &mut JoinList,
+    ) {
+        let [dl, dn, dj] = side.depths;
+        let cons_n = &plan.con_ops[plan.steps[dn].cons.0..plan.steps[dn].cons.1];
+        let cons_j = &plan.con_ops[plan.steps[dj].cons.0..plan.steps[dj].cons.1];
+        let rows = [
+            self.pen_row[dl % MAX_ROLES] % 3,
+            self.pen_row[dn % MAX_ROLES] % 3,
+            self.pen_row[dj % MAX_ROLES] % 3,
+        ];
+        let mut incr = [0.0; 2 * MAX_ROLES + MAX_CONSTRAINTS];
+        let mut objs = [NONE; MAX_ROLES];
+        let mut ml = self.cand_mask[dl % MAX_ROLES];
+        while ml != 0 {
+            let l = ml.trailing_zeros() as usize;
+            ml &= ml - 1;
+            let Some(n_roots) = self.nu.get(l).and_then(Option::as_ref).map(|s| s.len()) else {
+                continue;
+            };
+            let pl = self.obj_p4[(LEP_BASE + l) % OBJ_SLOTS];
+            objs[0] = l as u8;
+            incr[0] = self.pen[rows[0]][l % MAX_JETS];
+            for r in 0..n_roots {
+                let w = pl + self.obj_p4[(NU_BASE + 2 * l + r) % OBJ_SLOTS];
+                let mw = fast_mass(&w);
+                objs[1] = r as u8;
+                incr[1] = self.pen[rows[1]][r % MAX_JETS];
+                let mut n = 2;
+                for op in cons_n {
+                    incr[n % incr.len()] = op.term_of(mw, mw);
+                    n += 1;
+                }
+                let mut mj = self.cand_mask[dj % MAX_ROLES];
+                while mj != 0 {
+                    let j = mj.trailing_zeros() as usize;
+                    mj &= mj - 1;
+                    let q = w + self.obj_p4[(JET_BASE + j) % OBJ_SLOTS];
+                    let mass = fast_mass(&q);
+                    // As in `fill_join`: a NaN mass is never recorded.
+                    if mass.is_nan() {
+                        continue;
+                    }
+                    let mut n = n;
+                    incr[n % incr.len()] = self.pen[rows[2]][j % MAX_JETS];
+                    n += 1;
+                    for op in cons_j {
+                        incr[n % incr.len()] = if op.k == la.eq.k {
+                            0.0
+                        } else {
+                            op.term_of(mass, mass)
+                        };
+                        n += 1;
+                    }
+                    if t.entries.len() == MAX_JOIN_ENTRIES {
+                        t.overflow = true;
+                        return;
+                    }
+                    objs[2] = j as u8;
+                    let n = n.min(incr.len());
+                    let entry = JoinEntry {
+                        mass,
+                        rest: incr[..n].iter().sum(),
+                        jets: 1u64 << j,
+                        leps: 1u32 << l,
+                        id: t.objs.len() as u32,
+                    };
+                    t.entries.push(entry);
+                    t.objs.push(objs);
+                    t.incr.extend(incr[..n].iter().copied());
+                }
+            }
+        }
+    }
+}
