@@ -38,6 +38,10 @@ pub(super) struct ScoredPair {
     m: f64,
 }
 
+/// Additions per list entry copied as one fixed-size block (see
+/// `fill_lepton_side`).
+const FIXED_COPY: usize = 8;
+
 /// Most pairs of [`MAX_JETS`] jets.
 pub(super) const MAX_PAIRS: usize = MAX_JETS * (MAX_JETS - 1) / 2;
 
@@ -347,7 +351,16 @@ impl Workspace {
                     };
                     t.entries.push(entry);
                     t.objs.push(objs);
-                    t.incr.extend(incr[..n].iter().copied());
+                    // A fixed-size copy, then cut back: a copy of run-time
+                    // length is a `memcpy` call, which cost more than the
+                    // rest of the entry.
+                    if n <= FIXED_COPY {
+                        let start = t.incr.len();
+                        t.incr.extend_from_slice(&incr[..FIXED_COPY]);
+                        t.incr.truncate(start + n);
+                    } else {
+                        t.incr.extend_from_slice(&incr[..n]);
+                    }
                 }
             }
         }
