@@ -200,3 +200,27 @@ fn bw_with_extra_mass_constraints_matches_plain_and_independent_enumeration() {
     // The check must not pass vacuously on events with no assignment.
     assert!(compared > 200, "only {compared} searches found assignments");
 }
+
+/// With many jets and a long K-best list, the bound stays open for many
+/// pairs, so the dedicated path goes on from picking pairs one by one to
+/// sorting the rest: both orders must give the plain search's result.
+#[test]
+fn long_k_best_lists_with_many_jets_match_plain_enumeration() {
+    let (_, tw8, tw10) = bench_events::bench_events();
+    for e in tw8.iter().take(12).chain(tw10.iter().take(12)) {
+        for btag in policies() {
+            for (k_best, max_jets) in [(64, 8), (40, 10), (12, 10)] {
+                same_as_plain(
+                    "bwbw-ljets",
+                    e,
+                    SearchConfig {
+                        btag,
+                        k_best,
+                        max_jets_override: Some(max_jets),
+                        ..SearchConfig::default()
+                    },
+                );
+            }
+        }
+    }
+}

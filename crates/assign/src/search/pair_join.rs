@@ -42,6 +42,10 @@ pub(super) struct ScoredPair {
 /// `fill_lepton_side`).
 const FIXED_COPY: usize = 8;
 
+/// Pairs picked one by one (by a scan for the smallest χ²) before the rest
+/// are sorted (see [`Workspace::pair_join`]).
+const SELECT_FIRST: usize = 8;
+
 /// Most pairs of [`MAX_JETS`] jets.
 pub(super) const MAX_PAIRS: usize = MAX_JETS * (MAX_JETS - 1) / 2;
 
@@ -106,25 +110,12 @@ impl Workspace {
         plan: &Plan,
         lists: &[JoinList],
     ) {
-        let [r0, r1, r2] = k.roles;
         let rows = [
             self.pen_row[0] % 3,
             self.pen_row[1] % 3,
             self.pen_row[2] % 3,
         ];
         let cons1 = &plan.con_ops[plan.steps[1].cons.0..plan.steps[1].cons.1];
-        let cons2 = &plan.con_ops[plan.steps[2].cons.0..plan.steps[2].cons.1];
-        // As `eval_cons` for plain mass constraints on one composite.
-        let add_terms = |cons: &[ConOp], m: f64, mut v: f64| {
-            for op in cons {
-                v += op.term_of(m, m);
-            }
-            if v.is_nan() {
-                f64::INFINITY
-            } else {
-                v
-            }
-        };
         // Step 0 then step 1, as `dfs` computes them: the running χ² after
         // step 0 is 0 + its b-tag term (no constraint closes there).
         let mut pairs = std::mem::take(&mut self.pairs);
@@ -145,7 +136,7 @@ impl Workspace {
                 m1 &= m1 - 1;
                 let p = pa + self.obj_p4[(JET_BASE + b) % OBJ_SLOTS];
                 let m = fast_mass(&p);
-                let v = add_terms(cons1, m, v0 + self.pen[rows[1]][b % MAX_JETS]);
+                let v = plain_terms(cons1, m, v0 + self.pen[rows[1]][b % MAX_JETS]);
                 if v.is_finite() {
                     pairs.push(ScoredPair {
                         v,
@@ -159,14 +150,13 @@ impl Workspace {
         }
         self.evaluated.partial += pairs.len() as u64;
         let rest2 = self.rest_min[2];
-        let rest3 = self.rest_min[3];
-        let mut partial = 0u64;
         // Best first: the search usually ends after a few pairs, so picking
         // the smallest remaining each time costs less than sorting them all.
         // Ties go to the earlier pair (made in (a, b) order), so the visit
         // order is deterministic. A visited pair's χ² becomes ∞ (every kept
-        // one is finite).
-        loop {
+        // one is finite). The bound grows with v, so the first pair that
+        // fails it ends the search.
+        for _ in 0..SELECT_FIRST {
             let mut best = usize::MAX;
             let mut best_v = f64::INFINITY;
             for (i, sp) in pairs.iter().enumerate() {
@@ -175,43 +165,83 @@ impl Workspace {
                     best = i;
                 }
             }
-            // The bound grows with v: no later pair passes either.
             if best == usize::MAX || !self.admissible(best_v, rest2) {
-                break;
+                self.pairs = pairs;
+                return;
             }
             let sp = pairs[best];
             pairs[best].v = f64::INFINITY;
-            let (a, b) = (sp.a as usize, sp.b as usize);
-            self.choice[r0 % MAX_ROLES] = sp.a;
-            self.choice[r1 % MAX_ROLES] = sp.b;
-            self.p4s[r0 % SLOTS] = self.obj_p4[(JET_BASE + a) % OBJ_SLOTS];
-            self.p4s[r1 % SLOTS] = self.obj_p4[(JET_BASE + b) % OBJ_SLOTS];
-            self.p4s[(MAX_ROLES + k.pair) % SLOTS] = sp.p;
-            self.comp_m[k.pair % MAX_COMPOSITES] = sp.m;
-            let used = (1u64 << a) | (1u64 << b);
-            let mut m2 = self.cand_mask[2] & !used;
-            while m2 != 0 {
-                let c = m2.trailing_zeros() as usize;
-                m2 &= m2 - 1;
-                partial += 1;
-                let pc = self.obj_p4[(JET_BASE + c) % OBJ_SLOTS];
-                let p = sp.p + pc;
-                let m = fast_mass(&p);
-                let v = add_terms(cons2, m, sp.v + self.pen[rows[2]][c % MAX_JETS]);
-                if !self.admissible(v, rest3) {
-                    continue;
-                }
-                self.choice[r2 % MAX_ROLES] = c as u8;
-                self.p4s[r2 % SLOTS] = pc;
-                self.p4s[(MAX_ROLES + k.closed) % SLOTS] = p;
-                self.comp_m[k.closed % MAX_COMPOSITES] = m;
-                let mut occ = Occupancy::default();
-                occ.used[0] = used | (1u64 << c);
-                self.descend(hyp, plan, lists, 2, v, occ);
-            }
+            self.visit_pair(k, &sp, hyp, plan, lists);
         }
-        self.evaluated.partial += partial;
+        // Still open after many pairs (many jets, few completions): one sort
+        // of the rest instead of a scan per pick, in the same order.
+        pairs.sort_unstable_by(|x, y| x.v.total_cmp(&y.v).then((x.a, x.b).cmp(&(y.a, y.b))));
+        for sp in &pairs {
+            if !sp.v.is_finite() || !self.admissible(sp.v, rest2) {
+                break;
+            }
+            self.visit_pair(k, sp, hyp, plan, lists);
+        }
         self.pairs = pairs;
+    }
+
+    /// Places pair `sp` (steps 0 and 1) and goes on with every jet for step
+    /// 2, as `dfs` would.
+    #[inline(always)]
+    fn visit_pair(
+        &mut self,
+        k: &PairJetJoin,
+        sp: &ScoredPair,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        lists: &[JoinList],
+    ) {
+        let [r0, r1, r2] = k.roles;
+        let row2 = self.pen_row[2] % 3;
+        let cons2 = &plan.con_ops[plan.steps[2].cons.0..plan.steps[2].cons.1];
+        let rest3 = self.rest_min[3];
+        let (a, b) = (sp.a as usize, sp.b as usize);
+        self.choice[r0 % MAX_ROLES] = sp.a;
+        self.choice[r1 % MAX_ROLES] = sp.b;
+        self.p4s[r0 % SLOTS] = self.obj_p4[(JET_BASE + a) % OBJ_SLOTS];
+        self.p4s[r1 % SLOTS] = self.obj_p4[(JET_BASE + b) % OBJ_SLOTS];
+        self.p4s[(MAX_ROLES + k.pair) % SLOTS] = sp.p;
+        self.comp_m[k.pair % MAX_COMPOSITES] = sp.m;
+        let used = (1u64 << a) | (1u64 << b);
+        let mut m2 = self.cand_mask[2] & !used;
+        self.evaluated.partial += u64::from(m2.count_ones());
+        while m2 != 0 {
+            let c = m2.trailing_zeros() as usize;
+            m2 &= m2 - 1;
+            let pc = self.obj_p4[(JET_BASE + c) % OBJ_SLOTS];
+            let p = sp.p + pc;
+            let m = fast_mass(&p);
+            let v = plain_terms(cons2, m, sp.v + self.pen[row2][c % MAX_JETS]);
+            if !self.admissible(v, rest3) {
+                continue;
+            }
+            self.choice[r2 % MAX_ROLES] = c as u8;
+            self.p4s[r2 % SLOTS] = pc;
+            self.p4s[(MAX_ROLES + k.closed) % SLOTS] = p;
+            self.comp_m[k.closed % MAX_COMPOSITES] = m;
+            let mut occ = Occupancy::default();
+            occ.used[0] = used | (1u64 << c);
+            self.descend(hyp, plan, lists, 2, v, occ);
+        }
+    }
+}
+
+/// `eval_cons` for plain mass constraints on one composite of mass `m`:
+/// adds their terms to `v` in order; `∞` for a NaN sum.
+#[inline(always)]
+fn plain_terms(cons: &[ConOp], m: f64, mut v: f64) -> f64 {
+    for op in cons {
+        v += op.term_of(m, m);
+    }
+    if v.is_nan() {
+        f64::INFINITY
+    } else {
+        v
     }
 }
 
