@@ -23,7 +23,14 @@
 //! *joined*: its fillings are listed once per event, with their χ² terms
 //! computed by the search's own steps, sorted by mass, and below the other
 //! side the search walks this list outwards from the other side's mass,
-//! stopping where the equal-mass term alone exceeds the K-th best. All
+//! stopping where the equal-mass term alone exceeds the K-th best. The
+//! commonest joined shape, a bW pair (a W jet pair + b searched, lepton +
+//! neutrino + b listed), has dedicated code for both sides, chosen from the
+//! plan's shape, not the preset's name: all pairs are scored at once and
+//! visited best first, so the first pair that cannot reach the K best ends
+//! the search, and the list is built by plain loops. They do the general
+//! search's arithmetic in its order, and tests hold them to the search
+//! without pruning, bit for bit. All
 //! buffers are fixed-size arrays
 //! ([`MAX_ROLES`], [`MAX_JETS`], …) inside a reusable [`Searcher`]: nothing is
 //! allocated per assignment.
