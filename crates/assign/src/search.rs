@@ -1921,6 +1921,12 @@ impl Workspace {
         w: &JoinWalk,
         complete: &mut u64,
     ) -> bool {
+        // A filling that reuses an object is skipped before its term is
+        // computed: the walk's stop test is left to the next entry, whose
+        // term is at least as large (the bound holds for it too).
+        if e.jets & w.used_jets != 0 || e.leps & w.used_leps != 0 {
+            return true;
+        }
         let t_eq = la.eq.term_of(w.m_closed, e.mass);
         // Every other addition is ≥ 0 and floating-point addition of
         // non-negative numbers is monotonic, so the replayed sum is at least
@@ -1931,10 +1937,7 @@ impl Workspace {
             return false;
         }
         let with_rest = at_least + e.rest;
-        if with_rest - 1e-12 * with_rest <= self.thr
-            && e.jets & w.used_jets == 0
-            && e.leps & w.used_leps == 0
-        {
+        if with_rest - 1e-12 * with_rest <= self.thr {
             let id = e.id as usize;
             let mut x = w.v;
             for (k, &a) in t.incr[id * la.n_incr..(id + 1) * la.n_incr]
