@@ -46,6 +46,9 @@ const FIXED_COPY: usize = 8;
 /// are sorted (see [`Workspace::pair_join`]).
 const SELECT_FIRST: usize = 8;
 
+// `fill_lepton_side` relies on this: its list can never overflow.
+const _: () = assert!(MAX_LEPTONS * 2 * MAX_JETS <= MAX_JOIN_ENTRIES);
+
 /// Most pairs of [`MAX_JETS`] jets.
 pub(super) const MAX_PAIRS: usize = MAX_JETS * (MAX_JETS - 1) / 2;
 
@@ -326,6 +329,14 @@ impl Workspace {
         let mut incr = [0.0; 2 * MAX_ROLES + MAX_CONSTRAINTS];
         let mut objs = [NONE; MAX_ROLES];
         let mut ml = self.cand_mask[dl % MAX_ROLES];
+        let mj_all = self.cand_mask[dj % MAX_ROLES];
+        // At most 8 leptons × 2 roots × 32 jets entries: never more than
+        // the list may hold, so no entry needs the overflow check, and the
+        // room is made once.
+        let most = ml.count_ones() as usize * 2 * mj_all.count_ones() as usize;
+        t.entries.reserve(most);
+        t.objs.reserve(most);
+        t.incr.reserve(most * la.n_incr.max(FIXED_COPY));
         while ml != 0 {
             let l = ml.trailing_zeros() as usize;
             ml &= ml - 1;
@@ -345,7 +356,10 @@ impl Workspace {
                     incr[n % incr.len()] = op.term_of(mw, mw);
                     n += 1;
                 }
-                let mut mj = self.cand_mask[dj % MAX_ROLES];
+                // The sum of an entry's additions is a left fold; its first
+                // part is the same for every jet.
+                let head: f64 = incr[..n].iter().sum();
+                let mut mj = mj_all;
                 while mj != 0 {
                     let j = mj.trailing_zeros() as usize;
                     mj &= mj - 1;
@@ -356,30 +370,29 @@ impl Workspace {
                         continue;
                     }
                     let mut n = n;
-                    incr[n % incr.len()] = self.pen[rows[2]][j % MAX_JETS];
+                    let pen = self.pen[rows[2]][j % MAX_JETS];
+                    incr[n % incr.len()] = pen;
+                    let mut rest = head + pen;
                     n += 1;
                     for op in cons_j {
-                        incr[n % incr.len()] = if op.k == la.eq.k {
+                        let x = if op.k == la.eq.k {
                             0.0
                         } else {
                             op.term_of(mass, mass)
                         };
+                        incr[n % incr.len()] = x;
+                        rest += x;
                         n += 1;
-                    }
-                    if t.entries.len() == MAX_JOIN_ENTRIES {
-                        t.overflow = true;
-                        return;
                     }
                     objs[2] = j as u8;
                     let n = n.min(incr.len());
-                    let entry = JoinEntry {
+                    t.entries.push(JoinEntry {
                         mass,
-                        rest: incr[..n].iter().sum(),
+                        rest,
                         jets: 1u64 << j,
                         leps: 1u32 << l,
                         id: t.objs.len() as u32,
-                    };
-                    t.entries.push(entry);
+                    });
                     t.objs.push(objs);
                     // A fixed-size copy, then cut back: a copy of run-time
                     // length is a `memcpy` call, which cost more than the
