@@ -953,10 +953,10 @@ impl Plan {
             }),
             pair_join: None,
         };
-        plan.pair_join = pair_join::PairJetJoin::detect(&plan);
         for i in 0..plan.joins.len() {
             plan.joins[i].lepton_side = pair_join::LeptonSide::detect(&plan, &plan.joins[i]);
         }
+        plan.pair_join = pair_join::PairJetJoin::detect(&plan);
         plan
     }
 
@@ -1123,6 +1123,8 @@ struct Workspace {
     sort_scratch: Vec<(f64, u32)>,
     /// Scored pairs of the [`pair_join`] path (empty for other plans).
     pairs: Vec<pair_join::ScoredPair>,
+    /// The lepton side's compact list for the [`pair_join`] path.
+    lepton_list: pair_join::LeptonList,
 }
 
 /// A reusable search engine for one hypothesis and configuration.
@@ -1232,6 +1234,7 @@ impl Searcher {
             } else {
                 0
             }),
+            lepton_list: pair_join::LeptonList::for_plan(&plan),
         });
         Ok(Searcher {
             hyp: hyp.clone(),
@@ -1349,7 +1352,7 @@ impl Searcher {
         ws.prepare_closest(hyp);
         ws.choice = [NONE; MAX_ROLES];
         if self.config.prune {
-            ws.prepare_joins(hyp, plan);
+            ws.prepare_joins(hyp, plan, plan.pair_join.as_ref());
         }
         // The join lists are read-only during the search: moved out of the
         // workspace meanwhile, so the search can borrow them beside it.
@@ -1962,18 +1965,29 @@ impl Workspace {
     /// no earlier role, and raises the lower bound on the χ² still to come
     /// for the steps before each join by its list's smallest sum of
     /// additions (the equal-mass term, ≥ 0, left out).
-    fn prepare_joins(&mut self, hyp: &Hypothesis, plan: &Plan) {
+    /// The join of `pair` (the [`pair_join`] path), if it has a lepton
+    /// side, gets that path's compact list instead of the general one.
+    fn prepare_joins(
+        &mut self,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        pair: Option<&pair_join::PairJetJoin>,
+    ) {
         for (i, la) in plan.joins.iter().enumerate() {
-            self.build_join(hyp, plan, i);
-            let t = &self.lists[i];
-            if t.overflow {
-                continue;
-            }
-            let min_rest = t
-                .entries
-                .iter()
-                .map(|e| e.rest)
-                .fold(f64::INFINITY, f64::min);
+            let min_rest = match pair.and_then(|k| k.compact_side(i)) {
+                Some(side) => self.build_lepton_list(&side, plan, la),
+                None => {
+                    self.build_join(hyp, plan, i);
+                    let t = &self.lists[i];
+                    if t.overflow {
+                        continue;
+                    }
+                    t.entries
+                        .iter()
+                        .map(|e| e.rest)
+                        .fold(f64::INFINITY, f64::min)
+                }
+            };
             // Replaces the b-tag part of the open steps (each entry holds
             // its own b-tag terms). No entry: nothing can complete.
             let old = self.rest_min;
@@ -2356,6 +2370,7 @@ mod tests {
         let h = Hypothesis::from_toml(&no_interchange).unwrap();
         let plan = Plan::new(&h, 6, &BtagPolicy::Ignore);
         assert!(plan.pair_join.is_none());
+        assert!(plan.joins[0].lepton_side.is_some());
     }
 
     /// The join's outward walk relies on this: for a closed mass ≥ 0, the

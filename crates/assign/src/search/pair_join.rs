@@ -25,6 +25,11 @@ pub(super) struct PairJetJoin {
     /// composite + extra jet: the join's closed side).
     pair: usize,
     closed: usize,
+    /// The join at step 2 (index into [`Plan::joins`]) and, if its open side
+    /// is a [`LeptonSide`], that shape: its list is then this path's compact
+    /// [`LeptonList`].
+    join: usize,
+    side: Option<LeptonSide>,
 }
 
 /// One scored pair: running χ² after step 1, the two jets, the pair's
@@ -62,7 +67,8 @@ impl PairJetJoin {
     /// join at step 2 has that composite as its closed side.
     pub(super) fn detect(plan: &Plan) -> Option<PairJetJoin> {
         let steps = plan.steps.get(..3)?;
-        let join = steps[2].join.and_then(|i| plan.joins.get(i))?;
+        let join_index = steps[2].join?;
+        let join = plan.joins.get(join_index)?;
         for s in steps {
             if !matches!(s.kind, StepKind::Jet(_)) || s.skip_if.is_some() {
                 return None;
@@ -99,7 +105,14 @@ impl PairJetJoin {
             roles,
             pair,
             closed,
+            join: join_index,
+            side: join.lepton_side,
         })
+    }
+
+    /// The lepton side whose compact list replaces join `i`'s general one.
+    pub(super) fn compact_side(&self, i: usize) -> Option<LeptonSide> {
+        self.side.filter(|_| i == self.join)
     }
 }
 
@@ -152,6 +165,7 @@ impl Workspace {
             }
         }
         self.evaluated.partial += pairs.len() as u64;
+        let list = std::mem::take(&mut self.lepton_list);
         let rest2 = self.rest_min[2];
         // Best first: the search usually ends after a few pairs, so picking
         // the smallest remaining each time costs less than sorting them all.
@@ -170,11 +184,12 @@ impl Workspace {
             }
             if best == usize::MAX || !self.admissible(best_v, rest2) {
                 self.pairs = pairs;
+                self.lepton_list = list;
                 return;
             }
             let sp = pairs[best];
             pairs[best].v = f64::INFINITY;
-            self.visit_pair(k, &sp, hyp, plan, lists);
+            self.visit_pair(k, &sp, hyp, plan, lists, &list);
         }
         // Still open after many pairs (many jets, few completions): one sort
         // of the rest instead of a scan per pick, in the same order.
@@ -183,9 +198,10 @@ impl Workspace {
             if !sp.v.is_finite() || !self.admissible(sp.v, rest2) {
                 break;
             }
-            self.visit_pair(k, sp, hyp, plan, lists);
+            self.visit_pair(k, sp, hyp, plan, lists, &list);
         }
         self.pairs = pairs;
+        self.lepton_list = list;
     }
 
     /// Places pair `sp` (steps 0 and 1) and goes on with every jet for step
@@ -198,6 +214,7 @@ impl Workspace {
         hyp: &Hypothesis,
         plan: &Plan,
         lists: &[JoinList],
+        list: &LeptonList,
     ) {
         let [r0, r1, r2] = k.roles;
         let row2 = self.pen_row[2] % 3;
@@ -229,8 +246,164 @@ impl Workspace {
             self.comp_m[k.closed % MAX_COMPOSITES] = m;
             let mut occ = Occupancy::default();
             occ.used[0] = used | (1u64 << c);
-            self.descend(hyp, plan, lists, 2, v, occ);
+            match k.side {
+                // As `join`: a closed mass below 0 or not finite descends.
+                Some(side) if m >= 0.0 && m.is_finite() => {
+                    self.walk_lepton_list(k, &side, hyp, plan, list, v, m, occ.used[0]);
+                }
+                Some(_) => self.dfs(hyp, plan, lists, 3, v, occ),
+                None => self.descend(hyp, plan, lists, 2, v, occ),
+            }
         }
+    }
+
+    /// `join` on the compact list: the same walk, bounds and order of
+    /// additions as `join` and `join_visit` on the general list.
+    #[allow(clippy::too_many_arguments)]
+    #[inline(always)]
+    fn walk_lepton_list(
+        &mut self,
+        k: &PairJetJoin,
+        side: &LeptonSide,
+        hyp: &Hypothesis,
+        plan: &Plan,
+        list: &LeptonList,
+        v: f64,
+        m_closed: f64,
+        used_jets: u64,
+    ) {
+        let la = &plan.joins[k.join];
+        let entries = &list.entries[..];
+        let split = entries.partition_point(|e| e.mass < m_closed);
+        let mut complete = 0;
+        let walk = LeptonWalk {
+            la,
+            roles: side.roles(plan),
+            rows: side.rows(self),
+            cons_j: side.cons_j(plan),
+            n_roles: hyp.roles().len(),
+            v,
+            m_closed,
+            used_jets,
+        };
+        for e in &entries[split..] {
+            if !self.lepton_visit(&walk, list, e, &mut complete) {
+                break;
+            }
+        }
+        for e in entries[..split].iter().rev() {
+            if !self.lepton_visit(&walk, list, e, &mut complete) {
+                break;
+            }
+        }
+        self.evaluated.complete += complete;
+    }
+
+    /// `join_visit` for one compact entry; `false` once this side of the
+    /// walk can stop.
+    #[inline(always)]
+    fn lepton_visit(
+        &mut self,
+        w: &LeptonWalk,
+        list: &LeptonList,
+        e: &LeptonEntry,
+        complete: &mut u64,
+    ) -> bool {
+        // The closed side holds jets only: only the jet can clash.
+        if (1u64 << (e.jet % 64)) & w.used_jets != 0 {
+            return true;
+        }
+        let t_eq = w.la.eq.term_of(w.m_closed, e.mass);
+        let at_least = w.v + t_eq;
+        if at_least - 1e-12 * at_least > self.thr {
+            return false;
+        }
+        let with_rest = at_least + e.rest;
+        if with_rest - 1e-12 * with_rest <= self.thr {
+            let (l, r, j) = (e.lep as usize, e.root as usize, e.jet as usize);
+            // The general list's additions, in its order: lepton, neutrino
+            // (then the neutrino step's terms), jet (then the jet step's
+            // terms, the equal-mass one now known).
+            let mut x = w.v;
+            x += self.pen[w.rows[0]][l % MAX_JETS];
+            x += self.pen[w.rows[1]][r % MAX_JETS];
+            for &t in list.w_terms_of(l, r) {
+                x += t;
+            }
+            x += self.pen[w.rows[2]][j % MAX_JETS];
+            for op in w.cons_j {
+                x += if op.k == w.la.eq.k {
+                    t_eq
+                } else {
+                    op.term_of(e.mass, e.mass)
+                };
+            }
+            *complete += 1;
+            if x <= self.thr {
+                self.choice[w.roles[0] % MAX_ROLES] = e.lep;
+                self.choice[w.roles[1] % MAX_ROLES] = e.root;
+                self.choice[w.roles[2] % MAX_ROLES] = e.jet;
+                self.record(x, w.n_roles);
+            }
+        }
+        true
+    }
+}
+
+/// What a walk over the compact list needs.
+struct LeptonWalk<'a> {
+    la: &'a Join,
+    roles: [usize; 3],
+    rows: [usize; 3],
+    cons_j: &'a [ConOp],
+    n_roles: usize,
+    v: f64,
+    m_closed: f64,
+    used_jets: u64,
+}
+
+/// The lepton side's fillings for the [`PairJetJoin`] path: one 24-byte
+/// entry per filling (the general list keeps objects and additions beside
+/// each), sorted by mass. A walk recomputes the additions, the same values
+/// in the same order, for the few fillings that complete an assignment.
+#[derive(Clone, Debug, Default)]
+pub(super) struct LeptonList {
+    entries: Vec<LeptonEntry>,
+    /// Terms of the constraints completed at the neutrino step, per lepton
+    /// and root: `w_terms[(2 l + r) n_w + k]`.
+    w_terms: Vec<f64>,
+    n_w: usize,
+}
+
+#[derive(Clone, Copy, Debug)]
+struct LeptonEntry {
+    mass: f64,
+    /// The sum of the filling's additions, leaving out the equal-mass term.
+    rest: f64,
+    jet: u8,
+    lep: u8,
+    root: u8,
+}
+
+impl LeptonList {
+    /// Room for `plan`'s list if it has the path, else none.
+    pub(super) fn for_plan(plan: &Plan) -> LeptonList {
+        let used = plan.pair_join.is_some_and(|k| k.side.is_some());
+        let room = if used { MAX_LEPTONS * 2 * MAX_JETS } else { 0 };
+        LeptonList {
+            entries: Vec::with_capacity(room),
+            w_terms: Vec::with_capacity(if used {
+                MAX_LEPTONS * 2 * MAX_CONSTRAINTS
+            } else {
+                0
+            }),
+            n_w: 0,
+        }
+    }
+
+    fn w_terms_of(&self, l: usize, r: usize) -> &[f64] {
+        let at = (2 * l + r) * self.n_w;
+        self.w_terms.get(at..at + self.n_w).unwrap_or(&[])
     }
 }
 
@@ -308,7 +481,111 @@ impl LeptonSide {
     }
 }
 
+impl LeptonSide {
+    fn roles(&self, plan: &Plan) -> [usize; 3] {
+        self.depths.map(|d| plan.steps[d].role)
+    }
+
+    fn rows(&self, ws: &Workspace) -> [usize; 3] {
+        self.depths.map(|d| ws.pen_row[d % MAX_ROLES] % 3)
+    }
+
+    fn cons_j<'a>(&self, plan: &'a Plan) -> &'a [ConOp] {
+        let s = &plan.steps[self.depths[2]];
+        &plan.con_ops[s.cons.0..s.cons.1]
+    }
+}
+
 impl Workspace {
+    /// The compact [`LeptonList`] of join `la` (the [`PairJetJoin`] path),
+    /// with the same fillings, masses and sums as `fill_lepton_side`;
+    /// returns the smallest sum (∞ for no filling).
+    pub(super) fn build_lepton_list(&mut self, side: &LeptonSide, plan: &Plan, la: &Join) -> f64 {
+        let mut list = std::mem::take(&mut self.lepton_list);
+        list.entries.clear();
+        list.w_terms.clear();
+        let [dl, dn, _] = side.depths;
+        let cons_n = &plan.con_ops[plan.steps[dn].cons.0..plan.steps[dn].cons.1];
+        let cons_j = side.cons_j(plan);
+        let rows = side.rows(self);
+        list.n_w = cons_n.len();
+        list.w_terms.resize(MAX_LEPTONS * 2 * list.n_w, 0.0);
+        let mut incr = [0.0; 2 + MAX_CONSTRAINTS];
+        let mut min_rest = f64::INFINITY;
+        let mut ml = self.cand_mask[dl % MAX_ROLES];
+        let mj_all = self.cand_mask[side.depths[2] % MAX_ROLES];
+        while ml != 0 {
+            let l = ml.trailing_zeros() as usize;
+            ml &= ml - 1;
+            let Some(n_roots) = self.nu.get(l).and_then(Option::as_ref).map(|s| s.len()) else {
+                continue;
+            };
+            let pl = self.obj_p4[(LEP_BASE + l) % OBJ_SLOTS];
+            incr[0] = self.pen[rows[0]][l % MAX_JETS];
+            for r in 0..n_roots {
+                let w = pl + self.obj_p4[(NU_BASE + 2 * l + r) % OBJ_SLOTS];
+                let mw = fast_mass(&w);
+                incr[1] = self.pen[rows[1]][r % MAX_JETS];
+                let at = (2 * l + r) * list.n_w;
+                let mut n = 2;
+                for (i, op) in cons_n.iter().enumerate() {
+                    let t = op.term_of(mw, mw);
+                    incr[n % incr.len()] = t;
+                    if let Some(slot) = list.w_terms.get_mut(at + i) {
+                        *slot = t;
+                    }
+                    n += 1;
+                }
+                // The sum is a left fold; its first part is the same for
+                // every jet.
+                let head: f64 = incr[..n.min(incr.len())].iter().sum();
+                let mut mj = mj_all;
+                while mj != 0 {
+                    let j = mj.trailing_zeros() as usize;
+                    mj &= mj - 1;
+                    let q = w + self.obj_p4[(JET_BASE + j) % OBJ_SLOTS];
+                    let mass = fast_mass(&q);
+                    // As in `fill_join`: a NaN mass is never recorded.
+                    if mass.is_nan() {
+                        continue;
+                    }
+                    let mut rest = head + self.pen[rows[2]][j % MAX_JETS];
+                    for op in cons_j {
+                        rest += if op.k == la.eq.k {
+                            0.0
+                        } else {
+                            op.term_of(mass, mass)
+                        };
+                    }
+                    min_rest = min_rest.min(rest);
+                    list.entries.push(LeptonEntry {
+                        mass,
+                        rest,
+                        jet: j as u8,
+                        lep: l as u8,
+                        root: r as u8,
+                    });
+                }
+            }
+        }
+        // Insertion sort: a dozen entries for one lepton and six jets.
+        // Masses are never NaN, so `<` orders them (up to the sign of zero,
+        // which the walk does not distinguish).
+        let e = &mut list.entries[..];
+        for i in 1..e.len() {
+            let x = e[i];
+            let mut j = i;
+            while j > 0 && x.mass < e[j - 1].mass {
+                e[j] = e[j - 1];
+                j -= 1;
+            }
+            e[j] = x;
+        }
+        self.evaluated.partial += list.entries.len() as u64;
+        self.lepton_list = list;
+        min_rest
+    }
+
     /// `fill_join` for a join with the [`LeptonSide`] shape: the same
     /// entries, objects and additions, in the same order.
     pub(super) fn fill_lepton_side(
