@@ -1121,8 +1121,10 @@ struct Workspace {
     evaluated: Evaluated,
     // Scratch for sorting the input jets.
     sort_scratch: Vec<(f64, u32)>,
-    /// Scored pairs of the [`pair_join`] path (empty for other plans).
+    /// Scored pairs of the [`pair_join`] path (empty for other plans), and
+    /// their running χ² apart, for the best-first scan.
     pairs: Vec<pair_join::ScoredPair>,
+    pair_v: Vec<f64>,
     /// The lepton side's compact list for the [`pair_join`] path.
     lepton_list: pair_join::LeptonList,
 }
@@ -1230,6 +1232,11 @@ impl Searcher {
             evaluated: Evaluated::default(),
             sort_scratch: Vec::with_capacity(64),
             pairs: Vec::with_capacity(if plan.pair_join.is_some() {
+                pair_join::MAX_PAIRS
+            } else {
+                0
+            }),
+            pair_v: Vec::with_capacity(if plan.pair_join.is_some() {
                 pair_join::MAX_PAIRS
             } else {
                 0

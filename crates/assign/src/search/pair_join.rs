@@ -135,7 +135,9 @@ impl Workspace {
         // Step 0 then step 1, as `dfs` computes them: the running χ² after
         // step 0 is 0 + its b-tag term (no constraint closes there).
         let mut pairs = std::mem::take(&mut self.pairs);
+        let mut pair_v = std::mem::take(&mut self.pair_v);
         pairs.clear();
+        pair_v.clear();
         let mut m0 = self.cand_mask[0];
         while m0 != 0 {
             let a = m0.trailing_zeros() as usize;
@@ -154,6 +156,7 @@ impl Workspace {
                 let m = fast_mass(&p);
                 let v = plain_terms(cons1, m, v0 + self.pen[rows[1]][b % MAX_JETS]);
                 if v.is_finite() {
+                    pair_v.push(v);
                     pairs.push(ScoredPair {
                         v,
                         a: a as u8,
@@ -166,46 +169,61 @@ impl Workspace {
         }
         self.evaluated.partial += pairs.len() as u64;
         let list = std::mem::take(&mut self.lepton_list);
+        let walk = k.side.map(|side| LeptonWalk {
+            la: &plan.joins[k.join],
+            roles: side.roles(plan),
+            rows: side.rows(self),
+            cons_j: side.cons_j(plan),
+            n_roles: hyp.roles().len(),
+        });
         let rest2 = self.rest_min[2];
         // Best first: the search usually ends after a few pairs, so picking
         // the smallest remaining each time costs less than sorting them all.
         // Ties go to the earlier pair (made in (a, b) order), so the visit
-        // order is deterministic. A visited pair's χ² becomes ∞ (every kept
-        // one is finite). The bound grows with v, so the first pair that
-        // fails it ends the search.
+        // order is deterministic. The scan runs over the χ² values alone
+        // (`pair_v`); a visited pair's becomes ∞ (every kept one is finite).
+        // The bound grows with v, so the first pair that fails it ends the
+        // search.
+        let mut open = true;
         for _ in 0..SELECT_FIRST {
             let mut best = usize::MAX;
             let mut best_v = f64::INFINITY;
-            for (i, sp) in pairs.iter().enumerate() {
-                if sp.v < best_v {
-                    best_v = sp.v;
+            for (i, &v) in pair_v.iter().enumerate() {
+                if v < best_v {
+                    best_v = v;
                     best = i;
                 }
             }
             if best == usize::MAX || !self.admissible(best_v, rest2) {
-                self.pairs = pairs;
-                self.lepton_list = list;
-                return;
-            }
-            let sp = pairs[best];
-            pairs[best].v = f64::INFINITY;
-            self.visit_pair(k, &sp, hyp, plan, lists, &list);
-        }
-        // Still open after many pairs (many jets, few completions): one sort
-        // of the rest instead of a scan per pick, in the same order.
-        pairs.sort_unstable_by(|x, y| x.v.total_cmp(&y.v).then((x.a, x.b).cmp(&(y.a, y.b))));
-        for sp in &pairs {
-            if !sp.v.is_finite() || !self.admissible(sp.v, rest2) {
+                open = false;
                 break;
             }
-            self.visit_pair(k, sp, hyp, plan, lists, &list);
+            pair_v[best] = f64::INFINITY;
+            let sp = pairs[best];
+            self.visit_pair(k, &sp, hyp, plan, lists, &list, walk.as_ref());
+        }
+        if open {
+            // Still open after many pairs (many jets, few completions): one
+            // sort of the rest instead of a scan per pick, in the same order.
+            for (sp, &v) in pairs.iter_mut().zip(&pair_v) {
+                sp.v = v;
+            }
+            pairs.sort_unstable_by(|x, y| x.v.total_cmp(&y.v).then((x.a, x.b).cmp(&(y.a, y.b))));
+            for sp in &pairs {
+                if !sp.v.is_finite() || !self.admissible(sp.v, rest2) {
+                    break;
+                }
+                self.visit_pair(k, sp, hyp, plan, lists, &list, walk.as_ref());
+            }
         }
         self.pairs = pairs;
+        self.pair_v = pair_v;
         self.lepton_list = list;
     }
 
     /// Places pair `sp` (steps 0 and 1) and goes on with every jet for step
     /// 2, as `dfs` would.
+    #[allow(clippy::too_many_arguments)]
     #[inline(always)]
     fn visit_pair(
         &mut self,
@@ -215,6 +233,7 @@ impl Workspace {
         plan: &Plan,
         lists: &[JoinList],
         list: &LeptonList,
+        walk: Option<&LeptonWalk>,
     ) {
         let [r0, r1, r2] = k.roles;
         let row2 = self.pen_row[2] % 3;
@@ -246,10 +265,10 @@ impl Workspace {
             self.comp_m[k.closed % MAX_COMPOSITES] = m;
             let mut occ = Occupancy::default();
             occ.used[0] = used | (1u64 << c);
-            match k.side {
+            match walk {
                 // As `join`: a closed mass below 0 or not finite descends.
-                Some(side) if m >= 0.0 && m.is_finite() => {
-                    self.walk_lepton_list(k, &side, hyp, plan, list, v, m, occ.used[0]);
+                Some(w) if m >= 0.0 && m.is_finite() => {
+                    self.walk_lepton_list(w, list, v, m, occ.used[0]);
                 }
                 Some(_) => self.dfs(hyp, plan, lists, 3, v, occ),
                 None => self.descend(hyp, plan, lists, 2, v, occ),
@@ -259,40 +278,30 @@ impl Workspace {
 
     /// `join` on the compact list: the same walk, bounds and order of
     /// additions as `join` and `join_visit` on the general list.
-    #[allow(clippy::too_many_arguments)]
     #[inline(always)]
     fn walk_lepton_list(
         &mut self,
-        k: &PairJetJoin,
-        side: &LeptonSide,
-        hyp: &Hypothesis,
-        plan: &Plan,
+        w: &LeptonWalk,
         list: &LeptonList,
         v: f64,
         m_closed: f64,
         used_jets: u64,
     ) {
-        let la = &plan.joins[k.join];
         let entries = &list.entries[..];
         let split = entries.partition_point(|e| e.mass < m_closed);
         let mut complete = 0;
-        let walk = LeptonWalk {
-            la,
-            roles: side.roles(plan),
-            rows: side.rows(self),
-            cons_j: side.cons_j(plan),
-            n_roles: hyp.roles().len(),
+        let at = WalkPoint {
             v,
             m_closed,
             used_jets,
         };
         for e in &entries[split..] {
-            if !self.lepton_visit(&walk, list, e, &mut complete) {
+            if !self.lepton_visit(w, &at, list, e, &mut complete) {
                 break;
             }
         }
         for e in entries[..split].iter().rev() {
-            if !self.lepton_visit(&walk, list, e, &mut complete) {
+            if !self.lepton_visit(w, &at, list, e, &mut complete) {
                 break;
             }
         }
@@ -305,16 +314,17 @@ impl Workspace {
     fn lepton_visit(
         &mut self,
         w: &LeptonWalk,
+        at: &WalkPoint,
         list: &LeptonList,
         e: &LeptonEntry,
         complete: &mut u64,
     ) -> bool {
         // The closed side holds jets only: only the jet can clash.
-        if (1u64 << (e.jet % 64)) & w.used_jets != 0 {
+        if (1u64 << (e.jet % 64)) & at.used_jets != 0 {
             return true;
         }
-        let t_eq = w.la.eq.term_of(w.m_closed, e.mass);
-        let at_least = w.v + t_eq;
+        let t_eq = w.la.eq.term_of(at.m_closed, e.mass);
+        let at_least = at.v + t_eq;
         if at_least - 1e-12 * at_least > self.thr {
             return false;
         }
@@ -324,7 +334,7 @@ impl Workspace {
             // The general list's additions, in its order: lepton, neutrino
             // (then the neutrino step's terms), jet (then the jet step's
             // terms, the equal-mass one now known).
-            let mut x = w.v;
+            let mut x = at.v;
             x += self.pen[w.rows[0]][l % MAX_JETS];
             x += self.pen[w.rows[1]][r % MAX_JETS];
             for &t in list.w_terms_of(l, r) {
@@ -350,13 +360,18 @@ impl Workspace {
     }
 }
 
-/// What a walk over the compact list needs.
+/// What walks over the compact list need, the same for a whole event.
 struct LeptonWalk<'a> {
     la: &'a Join,
     roles: [usize; 3],
     rows: [usize; 3],
     cons_j: &'a [ConOp],
     n_roles: usize,
+}
+
+/// Where one walk starts: the running χ², the closed mass and the jets
+/// already used.
+struct WalkPoint {
     v: f64,
     m_closed: f64,
     used_jets: u64,
