@@ -5,13 +5,19 @@
 //!
 //! The general search fills the pair role by role: six nodes for the first
 //! jet, a sort of each one's partners, and so on. Here every pair is scored
-//! at once and sorted globally by its running χ², so the pairs are visited
-//! best first and the first pair that cannot reach the K best ends the whole
-//! search. The arithmetic is the general search's own, operation for
-//! operation (same sums in the same order, same terms, same bounds), so the
-//! K best are bit for bit those of the general search and of plain
-//! enumeration; `tests/join.rs` and `tests/search_vs_exhaustive.rs` check
-//! this on every b-tag policy.
+//! at once and visited best first (picked by a scan of their running χ²,
+//! then sorted if many are needed), so the first pair that cannot reach the
+//! K best ends the whole search. When the other side is a lepton, its
+//! neutrino and a jet ([`LeptonSide`]), its fillings are kept as a compact
+//! [`LeptonList`] and walked here; when only that side has the shape, the
+//! general list is still built by plain loops (`fill_lepton_side`).
+//!
+//! The arithmetic is the general search's own, operation for operation
+//! (same sums in the same order, same terms, same bounds), so the K best
+//! are bit for bit those of the general search without pruning and of
+//! plain enumeration; `tests/join.rs` and `tests/search_vs_exhaustive.rs`
+//! check this on every b-tag policy, and fail if this file's own terms,
+//! sort or clash check are broken.
 
 use super::*;
 
