@@ -1409,15 +1409,16 @@ pub fn search_all(
 /// beats the general sort; long ones use the general sort. Masses are never
 /// NaN (those fillings are left out), so `<` is a total order up to the sign
 /// of zero, which the walk does not distinguish.
-fn sort_by_mass(entries: &mut [JoinEntry]) {
+fn sort_by_mass<T: Copy>(entries: &mut [T], mass: impl Fn(&T) -> f64) {
     if entries.len() > 32 {
-        entries.sort_unstable_by(|a, b| a.mass.total_cmp(&b.mass));
+        entries.sort_unstable_by(|a, b| mass(a).total_cmp(&mass(b)));
         return;
     }
     for i in 1..entries.len() {
         let e = entries[i];
+        let m = mass(&e);
         let mut j = i;
-        while j > 0 && e.mass < entries[j - 1].mass {
+        while j > 0 && m < mass(&entries[j - 1]) {
             entries[j] = entries[j - 1];
             j -= 1;
         }
@@ -2033,7 +2034,7 @@ impl Workspace {
             );
         }
         if !t.overflow {
-            sort_by_mass(&mut t.entries);
+            sort_by_mass(&mut t.entries, |e| e.mass);
         }
         self.evaluated.partial += t.entries.len() as u64;
         self.lists[i] = t;

@@ -24,10 +24,18 @@ fn policies() -> [BtagPolicy; 3] {
 /// Pruned search (with the join) against the same search without pruning
 /// (every assignment scored): identical ranked lists, bit for bit.
 fn same_as_plain(name: &str, e: &Event, cfg: SearchConfig) -> (u64, u64) {
-    let h = presets::get(name).unwrap();
-    let out = Searcher::new(&h, cfg).unwrap().search(e);
+    same_as_plain_for(&presets::get(name).unwrap(), e, cfg).0
+}
+
+/// As [`same_as_plain`] for any hypothesis; also returns the pruned result.
+fn same_as_plain_for(
+    h: &quarry_assign::Hypothesis,
+    e: &Event,
+    cfg: SearchConfig,
+) -> ((u64, u64), quarry_assign::SearchOutcome) {
+    let out = Searcher::new(h, cfg).unwrap().search(e);
     let plain = Searcher::new(
-        &h,
+        h,
         SearchConfig {
             prune: false,
             ..cfg
@@ -37,7 +45,7 @@ fn same_as_plain(name: &str, e: &Event, cfg: SearchConfig) -> (u64, u64) {
     .search(e);
     assert_eq!(out.status, plain.status, "event {}", e.id);
     assert_eq!(out.ranked, plain.ranked, "event {} {cfg:?}", e.id);
-    (out.evaluated.complete, plain.evaluated.complete)
+    ((out.evaluated.complete, plain.evaluated.complete), out)
 }
 
 #[test]
@@ -166,18 +174,7 @@ fn bw_with_extra_mass_constraints_matches_plain_and_independent_enumeration() {
                     k_best,
                     ..SearchConfig::default()
                 };
-                let out = Searcher::new(&h, cfg).unwrap().search(e);
-                let plain = Searcher::new(
-                    &h,
-                    SearchConfig {
-                        prune: false,
-                        ..cfg
-                    },
-                )
-                .unwrap()
-                .search(e);
-                assert_eq!(out.status, plain.status, "event {}", e.id);
-                assert_eq!(out.ranked, plain.ranked, "event {} {cfg:?}", e.id);
+                let (_, out) = same_as_plain_for(&h, e, cfg);
                 let exh = exhaustive(&h, e, &cfg);
                 assert_eq!(out.ranked.len(), exh.len().min(k_best), "event {}", e.id);
                 for (a, s) in out.ranked.iter().zip(&exh) {
@@ -248,17 +245,7 @@ fn lepton_side_builder_under_the_general_walk_matches_plain_enumeration() {
                 k_best: 3,
                 ..SearchConfig::default()
             };
-            let out = Searcher::new(&h, cfg).unwrap().search(e);
-            let plain = Searcher::new(
-                &h,
-                SearchConfig {
-                    prune: false,
-                    ..cfg
-                },
-            )
-            .unwrap()
-            .search(e);
-            assert_eq!(out.ranked, plain.ranked, "event {} {cfg:?}", e.id);
+            same_as_plain_for(&h, e, cfg);
         }
     }
 }

@@ -518,23 +518,28 @@ impl LeptonSide {
 }
 
 impl Workspace {
-    /// The compact [`LeptonList`] of join `la` (the [`PairJetJoin`] path),
-    /// with the same fillings, masses and sums as `fill_lepton_side`;
-    /// returns the smallest sum (∞ for no filling).
-    pub(super) fn build_lepton_list(&mut self, side: &LeptonSide, plan: &Plan, la: &Join) -> f64 {
-        let mut list = std::mem::take(&mut self.lepton_list);
-        list.entries.clear();
-        list.w_terms.clear();
-        let [dl, dn, _] = side.depths;
+    /// Every filling of a [`LeptonSide`], in `fill_join`'s order (lepton,
+    /// root, jet): `on_root(lepton, root, terms)` sees each lepton and root
+    /// with the neutrino step's terms, then `on_filling(lepton, root, jet,
+    /// mass, sum, additions)` each jet. The additions are in the search's
+    /// order, the equal-mass one as 0, and the sum is their left fold, as in
+    /// `fill_join`; the mass is never NaN.
+    fn lepton_fillings(
+        &self,
+        side: &LeptonSide,
+        plan: &Plan,
+        la: &Join,
+        mut on_root: impl FnMut(usize, usize, &[f64]),
+        mut on_filling: impl FnMut(usize, usize, usize, f64, f64, &[f64]),
+    ) {
+        let [dl, dn, dj] = side.depths;
         let cons_n = &plan.con_ops[plan.steps[dn].cons.0..plan.steps[dn].cons.1];
         let cons_j = side.cons_j(plan);
         let rows = side.rows(self);
-        list.n_w = cons_n.len();
-        list.w_terms.resize(MAX_LEPTONS * 2 * list.n_w, 0.0);
-        let mut incr = [0.0; 2 + MAX_CONSTRAINTS];
-        let mut min_rest = f64::INFINITY;
+        // Three b-tag terms and every constraint at most once.
+        let mut incr = [0.0; 3 + MAX_CONSTRAINTS];
         let mut ml = self.cand_mask[dl % MAX_ROLES];
-        let mj_all = self.cand_mask[side.depths[2] % MAX_ROLES];
+        let mj_all = self.cand_mask[dj % MAX_ROLES];
         while ml != 0 {
             let l = ml.trailing_zeros() as usize;
             ml &= ml - 1;
@@ -547,19 +552,16 @@ impl Workspace {
                 let w = pl + self.obj_p4[(NU_BASE + 2 * l + r) % OBJ_SLOTS];
                 let mw = fast_mass(&w);
                 incr[1] = self.pen[rows[1]][r % MAX_JETS];
-                let at = (2 * l + r) * list.n_w;
                 let mut n = 2;
-                for (i, op) in cons_n.iter().enumerate() {
-                    let t = op.term_of(mw, mw);
-                    incr[n % incr.len()] = t;
-                    if let Some(slot) = list.w_terms.get_mut(at + i) {
-                        *slot = t;
-                    }
+                for op in cons_n {
+                    incr[n % incr.len()] = op.term_of(mw, mw);
                     n += 1;
                 }
+                let n = n.min(incr.len());
+                on_root(l, r, &incr[2..n]);
                 // The sum is a left fold; its first part is the same for
                 // every jet.
-                let head: f64 = incr[..n.min(incr.len())].iter().sum();
+                let head: f64 = incr[..n].iter().sum();
                 let mut mj = mj_all;
                 while mj != 0 {
                     let j = mj.trailing_zeros() as usize;
@@ -570,38 +572,63 @@ impl Workspace {
                     if mass.is_nan() {
                         continue;
                     }
-                    let mut rest = head + self.pen[rows[2]][j % MAX_JETS];
+                    let mut m = n;
+                    let pen = self.pen[rows[2]][j % MAX_JETS];
+                    incr[m % incr.len()] = pen;
+                    let mut rest = head + pen;
+                    m += 1;
                     for op in cons_j {
-                        rest += if op.k == la.eq.k {
+                        let x = if op.k == la.eq.k {
                             0.0
                         } else {
                             op.term_of(mass, mass)
                         };
+                        incr[m % incr.len()] = x;
+                        rest += x;
+                        m += 1;
                     }
-                    min_rest = min_rest.min(rest);
-                    list.entries.push(LeptonEntry {
-                        mass,
-                        rest,
-                        jet: j as u8,
-                        lep: l as u8,
-                        root: r as u8,
-                    });
+                    on_filling(l, r, j, mass, rest, &incr[..m.min(incr.len())]);
                 }
             }
         }
-        // Insertion sort: a dozen entries for one lepton and six jets.
-        // Masses are never NaN, so `<` orders them (up to the sign of zero,
-        // which the walk does not distinguish).
-        let e = &mut list.entries[..];
-        for i in 1..e.len() {
-            let x = e[i];
-            let mut j = i;
-            while j > 0 && x.mass < e[j - 1].mass {
-                e[j] = e[j - 1];
-                j -= 1;
-            }
-            e[j] = x;
-        }
+    }
+
+    /// The compact [`LeptonList`] of join `la` (the [`PairJetJoin`] path),
+    /// with the same fillings, masses and sums as `fill_lepton_side`;
+    /// returns the smallest sum (∞ for no filling).
+    pub(super) fn build_lepton_list(&mut self, side: &LeptonSide, plan: &Plan, la: &Join) -> f64 {
+        let mut list = std::mem::take(&mut self.lepton_list);
+        list.entries.clear();
+        let dn = side.depths[1];
+        list.n_w = plan.steps[dn].cons.1 - plan.steps[dn].cons.0;
+        list.w_terms.clear();
+        list.w_terms.resize(MAX_LEPTONS * 2 * list.n_w, 0.0);
+        let mut min_rest = f64::INFINITY;
+        let (entries, w_terms, n_w) = (&mut list.entries, &mut list.w_terms, list.n_w);
+        self.lepton_fillings(
+            side,
+            plan,
+            la,
+            |l, r, terms| {
+                let at = (2 * l + r) * n_w;
+                for (k, &t) in terms.iter().enumerate() {
+                    if let Some(slot) = w_terms.get_mut(at + k) {
+                        *slot = t;
+                    }
+                }
+            },
+            |l, r, j, mass, rest, _| {
+                min_rest = min_rest.min(rest);
+                entries.push(LeptonEntry {
+                    mass,
+                    rest,
+                    jet: j as u8,
+                    lep: l as u8,
+                    root: r as u8,
+                });
+            },
+        );
+        sort_by_mass(&mut list.entries, |e| e.mass);
         self.evaluated.partial += list.entries.len() as u64;
         self.lepton_list = list;
         min_rest
@@ -616,94 +643,45 @@ impl Workspace {
         la: &Join,
         t: &mut JoinList,
     ) {
-        let [dl, dn, dj] = side.depths;
-        let cons_n = &plan.con_ops[plan.steps[dn].cons.0..plan.steps[dn].cons.1];
-        let cons_j = &plan.con_ops[plan.steps[dj].cons.0..plan.steps[dj].cons.1];
-        let rows = [
-            self.pen_row[dl % MAX_ROLES] % 3,
-            self.pen_row[dn % MAX_ROLES] % 3,
-            self.pen_row[dj % MAX_ROLES] % 3,
-        ];
-        let mut incr = [0.0; 2 * MAX_ROLES + MAX_CONSTRAINTS];
-        let mut objs = [NONE; MAX_ROLES];
-        let mut ml = self.cand_mask[dl % MAX_ROLES];
-        let mj_all = self.cand_mask[dj % MAX_ROLES];
         // At most 8 leptons × 2 roots × 32 jets entries: never more than
         // the list may hold, so no entry needs the overflow check, and the
         // room is made once.
-        let most = ml.count_ones() as usize * 2 * mj_all.count_ones() as usize;
+        let most = self.cand_mask[side.depths[0] % MAX_ROLES].count_ones() as usize
+            * 2
+            * self.cand_mask[side.depths[2] % MAX_ROLES].count_ones() as usize;
         t.entries.reserve(most);
         t.objs.reserve(most);
         t.incr.reserve(most * la.n_incr.max(FIXED_COPY));
-        while ml != 0 {
-            let l = ml.trailing_zeros() as usize;
-            ml &= ml - 1;
-            let Some(n_roots) = self.nu.get(l).and_then(Option::as_ref).map(|s| s.len()) else {
-                continue;
-            };
-            let pl = self.obj_p4[(LEP_BASE + l) % OBJ_SLOTS];
-            objs[0] = l as u8;
-            incr[0] = self.pen[rows[0]][l % MAX_JETS];
-            for r in 0..n_roots {
-                let w = pl + self.obj_p4[(NU_BASE + 2 * l + r) % OBJ_SLOTS];
-                let mw = fast_mass(&w);
-                objs[1] = r as u8;
-                incr[1] = self.pen[rows[1]][r % MAX_JETS];
-                let mut n = 2;
-                for op in cons_n {
-                    incr[n % incr.len()] = op.term_of(mw, mw);
-                    n += 1;
+        let mut objs = [NONE; MAX_ROLES];
+        self.lepton_fillings(
+            side,
+            plan,
+            la,
+            |_, _, _| {},
+            |l, r, j, mass, rest, incr| {
+                objs[..3].copy_from_slice(&[l as u8, r as u8, j as u8]);
+                t.entries.push(JoinEntry {
+                    mass,
+                    rest,
+                    jets: 1u64 << j,
+                    leps: 1u32 << l,
+                    id: t.objs.len() as u32,
+                });
+                t.objs.push(objs);
+                // A fixed-size copy, then cut back: a copy of run-time
+                // length is a `memcpy` call, which cost more than the
+                // rest of the entry.
+                let n = incr.len();
+                if n <= FIXED_COPY {
+                    let mut block = [0.0; FIXED_COPY];
+                    block[..n].copy_from_slice(incr);
+                    let start = t.incr.len();
+                    t.incr.extend_from_slice(&block);
+                    t.incr.truncate(start + n);
+                } else {
+                    t.incr.extend_from_slice(incr);
                 }
-                // The sum of an entry's additions is a left fold; its first
-                // part is the same for every jet.
-                let head: f64 = incr[..n].iter().sum();
-                let mut mj = mj_all;
-                while mj != 0 {
-                    let j = mj.trailing_zeros() as usize;
-                    mj &= mj - 1;
-                    let q = w + self.obj_p4[(JET_BASE + j) % OBJ_SLOTS];
-                    let mass = fast_mass(&q);
-                    // As in `fill_join`: a NaN mass is never recorded.
-                    if mass.is_nan() {
-                        continue;
-                    }
-                    let mut n = n;
-                    let pen = self.pen[rows[2]][j % MAX_JETS];
-                    incr[n % incr.len()] = pen;
-                    let mut rest = head + pen;
-                    n += 1;
-                    for op in cons_j {
-                        let x = if op.k == la.eq.k {
-                            0.0
-                        } else {
-                            op.term_of(mass, mass)
-                        };
-                        incr[n % incr.len()] = x;
-                        rest += x;
-                        n += 1;
-                    }
-                    objs[2] = j as u8;
-                    let n = n.min(incr.len());
-                    t.entries.push(JoinEntry {
-                        mass,
-                        rest,
-                        jets: 1u64 << j,
-                        leps: 1u32 << l,
-                        id: t.objs.len() as u32,
-                    });
-                    t.objs.push(objs);
-                    // A fixed-size copy, then cut back: a copy of run-time
-                    // length is a `memcpy` call, which cost more than the
-                    // rest of the entry.
-                    if n <= FIXED_COPY {
-                        let start = t.incr.len();
-                        t.incr.extend_from_slice(&incr[..FIXED_COPY]);
-                        t.incr.truncate(start + n);
-                    } else {
-                        t.incr.extend_from_slice(&incr[..n]);
-                    }
-                }
-            }
-        }
+            },
+        );
     }
 }
