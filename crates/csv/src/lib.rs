@@ -23,6 +23,7 @@ mod seen;
 mod writer;
 
 pub use error::{BadEvent, BadReason, CsvError, FieldError};
+pub use output::AtomicOutput;
 pub use quarry_event::Event;
 pub use reader::{
     ErrorPolicy, EventReader, RawEvent, ReadOptions, ReadSummary, Record, DEFAULT_MAX_OBJECTS,

@@ -38,8 +38,22 @@ impl Drop for TempGuard {
 }
 
 /// An output byte stream that becomes visible under its final name only on
-/// [`AtomicOutput::commit`].
-pub(crate) struct AtomicOutput {
+/// [`AtomicOutput::commit`]: `-` is stdout, a `.gz` suffix gzips, anything
+/// else goes to a hidden temporary file beside the target that is removed
+/// if the value is dropped uncommitted. Both writers use it; `quarry merge`
+/// writes its raw bytes through it.
+///
+/// ```
+/// use std::io::Write;
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("merged.csv");
+/// let mut out = quarry_csv::AtomicOutput::create(&path).unwrap();
+/// out.write_all(b"a,b\n1,2\n").unwrap();
+/// assert!(!path.exists()); // not visible before commit
+/// out.commit().unwrap();
+/// assert_eq!(std::fs::read_to_string(&path).unwrap(), "a,b\n1,2\n");
+/// ```
+pub struct AtomicOutput {
     // Field order matters: the sink (and its file handle) drops before the
     // guard removes the temporary file.
     sink: Sink,
@@ -51,7 +65,7 @@ static COUNTER: AtomicU64 = AtomicU64::new(0);
 
 impl AtomicOutput {
     /// Opens `path` for writing: `-` is stdout; a `.gz` suffix gzips.
-    pub(crate) fn create(path: &Path) -> Result<AtomicOutput, CsvError> {
+    pub fn create(path: &Path) -> Result<AtomicOutput, CsvError> {
         let gz = path.extension().is_some_and(|e| e == "gz");
         if path.as_os_str() == "-" {
             let out = BufWriter::new(io::stdout());
@@ -99,12 +113,12 @@ impl AtomicOutput {
     }
 
     /// The name used in error messages.
-    pub(crate) fn name(&self) -> &str {
+    pub fn name(&self) -> &str {
         &self.name
     }
 
     /// Flushes everything, closes the file and renames it into place.
-    pub(crate) fn commit(self) -> Result<(), CsvError> {
+    pub fn commit(self) -> Result<(), CsvError> {
         let AtomicOutput { sink, target, name } = self;
         let werr = |source| CsvError::Write {
             file: name.clone(),
