@@ -44,6 +44,8 @@ pub use quarry_resolution as resolution;
 pub use quarry_toy as toy;
 pub use quarry_vars as vars;
 
+pub mod manifest;
+pub mod merge;
 pub mod output;
 mod pipeline;
 pub mod stream;

@@ -172,7 +172,8 @@ fn check_case(input: &Path, policy: &str, expect: &Expect) {
             let leftovers: Vec<String> = std::fs::read_dir(dir.path())
                 .unwrap()
                 .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-                .filter(|n| n != "out.csv")
+                // The manifest is written beside a complete output (docs/manifest.md).
+                .filter(|n| n != "out.csv" && n != "out.csv.manifest.json")
                 .collect();
             assert!(
                 leftovers.is_empty(),
@@ -187,6 +188,7 @@ fn check_case(input: &Path, policy: &str, expect: &Expect) {
             }
             let rows = parse_rows(&std::fs::read(&out_path).unwrap());
             std::fs::remove_file(&out_path).unwrap();
+            std::fs::remove_file(dir.path().join("out.csv.manifest.json")).unwrap();
             rows
         } else {
             parse_rows(&out.stdout)

@@ -174,7 +174,10 @@ fn a_finished_run_renames_its_output_into_place() {
     write_input(&dir.path().join("in.csv"), 50);
     let status = start(dir.path()).wait().unwrap();
     assert!(status.success());
-    assert_eq!(other_files(dir.path()), vec!["out.csv".to_string()]);
+    // The output and its manifest (docs/manifest.md), nothing else.
+    let mut files = other_files(dir.path());
+    files.sort();
+    assert_eq!(files, ["out.csv", "out.csv.manifest.json"]);
     let text = std::fs::read_to_string(dir.path().join("out.csv")).unwrap();
     // Header + 50 events × 3 hypotheses.
     assert_eq!(text.lines().count(), 1 + 50 * 3);

@@ -288,6 +288,7 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
     let mut writer: RowWriter<Row> =
         RowWriter::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
     let mut summary = Summary::start();
+    let started = std::time::SystemTime::now();
     let bar = progress_bar(!args.no_progress && !args.quiet);
     let result = pool.install(|| {
         ordered_chunked_map(
@@ -305,7 +306,10 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                 let (bytes, statuses, bad) = match outcome {
                     Outcome::Rows(bytes, statuses, bad) => (bytes, statuses, bad),
                     Outcome::OtherShard => return Ok(()),
-                    Outcome::Stop(failure) => return Err(failure),
+                    Outcome::Stop(failure) => {
+                        summary.stopped = true;
+                        return Err(failure);
+                    }
                 };
                 summary.processed += 1;
                 if let Some(reason) = bad {
@@ -333,9 +337,22 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
     let shard = args.shard.map(|s| s.to_string());
     match result {
         Ok(()) => {
+            // The manifest beside a file output appears after the output and
+            // describes it; an older one goes first (quarry::manifest).
+            let to_file = args.output.as_os_str() != "-";
+            if to_file {
+                quarry::manifest::remove_stale(&args.output)
+                    .map_err(|e| Failure::Output(format!("{}: {e}", args.output.display())))?;
+            }
             writer
                 .finish()
                 .map_err(|e| Failure::Output(e.to_string()))?;
+            if to_file {
+                let threads = pool.current_num_threads();
+                super::reco_manifest::manifest(args, &pipeline, &summary, started, threads)?
+                    .write_beside(&args.output)
+                    .map_err(|e| Failure::Output(e.to_string()))?;
+            }
             if !args.quiet {
                 eprint!(
                     "{}",

@@ -20,6 +20,9 @@ pub struct Summary {
     pub by_status: BTreeMap<&'static str, u64>,
     /// Rejected events per reader reason (`not-finite`, ...).
     pub bad_by_reason: BTreeMap<&'static str, u64>,
+    /// The run stopped at the last event read (a bad event under
+    /// `--on-bad stop`): that event has no rows.
+    pub stopped: bool,
 }
 
 impl Summary {
@@ -31,6 +34,7 @@ impl Summary {
             rows: 0,
             by_status: BTreeMap::new(),
             bad_by_reason: BTreeMap::new(),
+            stopped: false,
         }
     }
 
@@ -50,6 +54,9 @@ impl Summary {
         let _ = write!(s, "quarry reco: {} events read", self.read);
         if let Some(shard) = shard {
             let _ = write!(s, ", {} in shard {shard}", self.processed);
+        }
+        if self.stopped {
+            let _ = write!(s, ", the last one stopped the run (no rows for it)");
         }
         let _ = writeln!(
             s,
