@@ -2,7 +2,8 @@
 //! streams CSV events in, and result rows out.
 //!
 //! Subcommands: `reco` (reconstruct), `presets list|show` (built-in
-//! hypotheses), `generate` (toy events), `eval` (evaluation on simulation). Exit codes are listed in
+//! hypotheses), `generate` (toy events), `eval` (evaluation on simulation), `merge`
+//! (shard outputs of a job array). Exit codes are listed in
 //! `quarry reco --help` and docs/cli.md.
 
 use std::process::ExitCode;
@@ -42,6 +43,7 @@ fn main() -> ExitCode {
         Command::Presets(cmd) => cli::presets::run(&cmd),
         Command::Generate(args) => cli::generate::run(&args),
         Command::Eval(args) => cli::eval::run(&args),
+        Command::Merge(args) => cli::merge::run(&args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -59,6 +59,10 @@ pub enum Command {
     /// fractions, mass resolution, plots.
     #[command(after_help = EVAL_HELP)]
     Eval(EvalArgs),
+    /// Merge the shard outputs of a job array into the unsharded run's
+    /// output, after checking their manifests.
+    #[command(after_help = super::merge::MERGE_HELP)]
+    Merge(super::merge::MergeArgs),
 }
 
 const EVAL_HELP: &str = concat!(

@@ -4,8 +4,10 @@
 pub mod args;
 pub mod eval;
 pub mod generate;
+pub mod merge;
 pub mod presets;
 pub mod reco;
+pub mod reco_manifest;
 pub mod summary;
 
 /// A failed run: what to print (one line) and which exit code to return.
@@ -19,6 +21,9 @@ pub enum Failure {
     Output(String),
     /// SIGINT or SIGTERM arrived; the output was not committed.
     Interrupted(String),
+    /// `quarry merge` refused the shards (missing, duplicated,
+    /// inconsistent); the message lists every problem, one per line.
+    Refused(String),
 }
 
 impl Failure {
@@ -30,6 +35,8 @@ impl Failure {
     pub const OUTPUT: u8 = 3;
     /// Exit code of a run stopped by SIGINT or SIGTERM.
     pub const INTERRUPTED: u8 = 4;
+    /// Exit code of a merge refused because of its shards.
+    pub const REFUSED: u8 = 5;
 
     pub fn code(&self) -> u8 {
         match self {
@@ -37,13 +44,19 @@ impl Failure {
             Failure::Input(_) => Self::INPUT,
             Failure::Output(_) => Self::OUTPUT,
             Failure::Interrupted(_) => Self::INTERRUPTED,
+            Failure::Refused(_) => Self::REFUSED,
         }
     }
 
-    /// The message, on one line.
+    /// The message, on one line (a refusal keeps its list of problems,
+    /// one per line).
     pub fn message(&self) -> String {
-        let (Failure::Usage(m) | Failure::Input(m) | Failure::Output(m) | Failure::Interrupted(m)) =
-            self;
-        m.replace('\n', " ")
+        match self {
+            Failure::Usage(m)
+            | Failure::Input(m)
+            | Failure::Output(m)
+            | Failure::Interrupted(m) => m.replace('\n', " "),
+            Failure::Refused(m) => m.clone(),
+        }
     }
 }
