@@ -92,6 +92,35 @@ pub enum FitStatus {
     InvalidInput(FitInputError),
 }
 
+impl FitStatus {
+    /// The stable snake_case name of the status, as in the `fit_status`
+    /// output column: `converged`, `covariance_failed`, `iteration_limit`,
+    /// `constraints_not_met`, `numerical_failure`, `invalid_input` (the
+    /// refused input's detail is left out; `Display` shows the same name).
+    ///
+    /// ```
+    /// use quarry_fit::FitStatus;
+    /// assert_eq!(FitStatus::IterationLimit.as_str(), "iteration_limit");
+    /// assert_eq!(FitStatus::Converged.to_string(), "converged");
+    /// ```
+    pub fn as_str(&self) -> &'static str {
+        match self {
+            FitStatus::Converged => "converged",
+            FitStatus::CovarianceFailed => "covariance_failed",
+            FitStatus::IterationLimit => "iteration_limit",
+            FitStatus::ConstraintsNotMet => "constraints_not_met",
+            FitStatus::NumericalFailure => "numerical_failure",
+            FitStatus::InvalidInput(_) => "invalid_input",
+        }
+    }
+}
+
+impl std::fmt::Display for FitStatus {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
 /// A fitted common mass with its uncertainty.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct CommonMass {
