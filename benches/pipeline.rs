@@ -1,7 +1,8 @@
 //! End-to-end throughput of `quarry reco` without the fit: CSV parsing,
 //! selection, event variables, the `ttbar-ljets` search and output rows,
 //! exactly as the command line chains them (reading overlapped with
-//! processing, rayon on 2 threads, rows serialised as CSV), on toy top-pair
+//! processing, rayon on 2 threads, rows serialised as CSV — through
+//! `quarry::stream`, the code the command line runs), on toy top-pair
 //! events held in memory so disk speed does not enter.
 //!
 //! Run: `cargo bench --bench pipeline -- --warm-up-time 1 --measurement-time 3`
@@ -15,8 +16,8 @@ use std::sync::Arc;
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use quarry::csv::{ErrorPolicy, EventReader, EventWriter, ReadOptions, Record};
-use quarry::output::Row;
-use quarry::stream::ordered_chunked_map;
+use quarry::output::CsvSink;
+use quarry::stream::{ordered_chunked_map, outcome_of, Outcome, RawEvents};
 use quarry::toy::{Generator, ToyConfig};
 use quarry::Pipeline;
 use rayon::prelude::*;
@@ -90,41 +91,23 @@ fn bench(c: &mut Criterion) {
     g.bench_function("csv_to_rows_2_threads", |b| {
         b.iter(|| {
             let mut out: Vec<u8> = Vec::with_capacity(8 << 20);
-            // As the CLI does: the reader thread only groups rows into raw
-            // events, the workers parse, reconstruct and format them as CSV
-            // text, the calling thread only copies bytes.
-            let mut r = reader(&data);
-            let raw = std::iter::from_fn(move || r.next_raw())
-                .enumerate()
-                .map(|(i, r)| r.map(|raw| (i as u64, raw)).map_err(|e| e.to_string()));
+            // The CLI's own streaming code: the reader thread only groups
+            // rows into raw events, the workers parse, reconstruct and
+            // format them as CSV text, the calling thread only copies bytes.
+            let events = RawEvents::from_readers([Ok(reader(&data))]).on_warning(|_| {});
             pool.install(|| {
                 ordered_chunked_map(
-                    raw,
+                    events.map(|r| r.map_err(|e| e.to_string())),
                     quarry::stream::DEFAULT_CHUNK,
                     || pipeline.worker(),
-                    |w, (ordinal, raw)| {
-                        let rows = match raw.parse() {
-                            Record::Good(e) => w
-                                .reconstruct(e)
-                                .iter()
-                                .map(|r| Row::from_reconstruction(ordinal, r))
-                                .collect::<Vec<_>>(),
-                            Record::Bad(bad) => vec![Row::bad_input(
-                                ordinal,
-                                bad.id,
-                                "ttbar-ljets",
-                                &bad.error.to_string(),
-                            )],
-                        };
-                        let mut bytes = Vec::with_capacity(256 * rows.len());
-                        for row in &rows {
-                            row.write_csv(&mut bytes);
+                    |w, event| outcome_of::<CsvSink>(w, ErrorPolicy::Skip, event),
+                    |outcome| match outcome {
+                        Outcome::Rows(rows) => {
+                            out.extend_from_slice(&rows.prepared);
+                            Ok(())
                         }
-                        Ok::<_, String>(bytes)
-                    },
-                    |bytes| {
-                        out.extend_from_slice(&bytes?);
-                        Ok(())
+                        Outcome::OtherShard => Ok(()),
+                        Outcome::Stop(message) => Err(message),
                     },
                 )
             })

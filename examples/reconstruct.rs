@@ -66,10 +66,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         if let Some(Ok(fit)) = &r.fit {
             println!(
                 "  fit {}: χ² {:.2} (ndf {}), P = {:.3}",
-                quarry::fit_status_name(&fit.status),
-                fit.chi2,
-                fit.ndf,
-                fit.probability
+                fit.status, fit.chi2, fit.ndf, fit.probability
             );
         }
         if let Some(t) = r.truth {

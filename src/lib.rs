@@ -50,6 +50,4 @@ pub mod output;
 mod pipeline;
 pub mod stream;
 
-pub use pipeline::{
-    fit_status_name, Pipeline, PipelineBuilder, PipelineError, Reconstruction, Status, Worker,
-};
+pub use pipeline::{Pipeline, PipelineBuilder, PipelineError, Reconstruction, Status, Worker};

@@ -1,10 +1,61 @@
-//! Streaming helpers for batch runs: deterministic sharding of an event
-//! stream, and an order-preserving, memory-bounded parallel map.
+//! Streaming event files through a [`Pipeline`], as `quarry reco` does:
+//! the reader side ([`RawEvents`]: files → events grouped but not parsed,
+//! numbered by their position in the whole stream, marked with their
+//! [`Shard`]), the worker side ([`outcome_of`]: parse, reconstruct, make
+//! the rows and prepare them for a [`RowSink`]), and the order-preserving,
+//! memory-bounded parallel map that joins them ([`ordered_chunked_map`]).
+//!
+//! The command line, the `pipeline` benchmark and the fuzz targets run this
+//! same code. A Rust program streams a file into a CSV output like this:
+//!
+//! ```
+//! use quarry::csv::{ErrorPolicy, ReadOptions};
+//! use quarry::output::{CsvSink, RowSink};
+//! use quarry::stream::{ordered_chunked_map, outcome_of, Outcome, RawEvents, DEFAULT_CHUNK};
+//!
+//! # let dir = tempfile::tempdir().unwrap();
+//! # let input = dir.path().join("events.csv");
+//! # let mut w = quarry::csv::EventWriter::create(&input).unwrap();
+//! # for e in quarry::toy::Generator::new(quarry::toy::ToyConfig::top_pair(), 1).unwrap().take(50) {
+//! #     w.write(&e).unwrap();
+//! # }
+//! # w.finish().unwrap();
+//! # let output = dir.path().join("reco.csv");
+//! let pipeline = quarry::Pipeline::builder().preset("ttbar-ljets").build().unwrap();
+//! let inputs = [input];
+//! let events = RawEvents::open(&inputs, ReadOptions::default());
+//! let mut sink = CsvSink::create(&output).unwrap();
+//! let mut rows = 0;
+//! ordered_chunked_map(
+//!     events.map(|r| r.map_err(|e| e.to_string())),
+//!     DEFAULT_CHUNK,
+//!     || pipeline.worker(),
+//!     |worker, event| outcome_of::<CsvSink>(worker, ErrorPolicy::Skip, event),
+//!     |outcome| match outcome {
+//!         Outcome::Rows(r) => {
+//!             rows += r.statuses.len();
+//!             sink.write(r.prepared).map_err(|e| e.to_string())
+//!         }
+//!         Outcome::OtherShard => Ok(()),
+//!         Outcome::Stop(message) => Err(message),
+//!     },
+//! )
+//! .unwrap();
+//! sink.finish().unwrap();
+//! assert_eq!(rows, 50);
+//! let text = std::fs::read_to_string(&output).unwrap();
+//! assert_eq!(text.lines().count(), 1 + 50);
+//! ```
 
 use std::fmt;
+use std::path::PathBuf;
 use std::str::FromStr;
 
+use quarry_csv::{BadReason, CsvError, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record};
 use rayon::prelude::*;
+
+use crate::output::{Row, RowSink};
+use crate::Worker;
 
 /// One slice of an event stream for a batch job array: shard `index` of
 /// `count` keeps the events whose **ordinal** (0-based position in the
@@ -85,6 +136,217 @@ impl FromStr for Shard {
         let k: u64 = k.trim().parse().map_err(|_| err())?;
         let n: u64 = n.trim().parse().map_err(|_| err())?;
         Shard::new(k, n).ok_or_else(err)
+    }
+}
+
+/// One event of a stream, grouped from its rows but not parsed (parsing
+/// runs on the workers).
+#[derive(Debug)]
+pub struct NumberedEvent {
+    /// 0-based position in the whole input stream (all files, every event,
+    /// before sharding): the output's `ordinal` column.
+    pub ordinal: u64,
+    /// The event's rows.
+    pub raw: RawEvent,
+    /// Whether the event belongs to the stream's [`Shard`].
+    pub kept: bool,
+}
+
+/// Every event of a list of inputs, one input after the other, as
+/// [`NumberedEvent`]s.
+///
+/// Events of other shards pass too (marked `kept: false`), because under
+/// the stop policy the first bad event in *any* shard stops the run, so
+/// that every shard of a job array stops alike; [`outcome_of`] skips them
+/// without parsing under the skip policy. An input that cannot be opened,
+/// or a fatal read error, ends the stream with that error. The readers'
+/// warnings (e.g. unknown columns) go to [`on_warning`](Self::on_warning)'s
+/// callback, by default to standard error.
+pub struct RawEvents<'a> {
+    readers: Box<dyn Iterator<Item = Result<EventReader, CsvError>> + Send + 'a>,
+    current: Option<EventReader>,
+    shard: Shard,
+    next_ordinal: u64,
+    warned: usize,
+    on_warning: Box<dyn FnMut(&str) + Send + 'a>,
+}
+
+impl<'a> RawEvents<'a> {
+    /// The events of these files (`-` is standard input, `.gz` is
+    /// decompressed), each opened when the previous one ends.
+    pub fn open(paths: &'a [PathBuf], options: ReadOptions) -> RawEvents<'a> {
+        RawEvents::from_readers(paths.iter().map(move |p| EventReader::open(p, options)))
+    }
+
+    /// The events of readers opened by the caller (e.g. over memory).
+    pub fn from_readers(
+        readers: impl IntoIterator<Item = Result<EventReader, CsvError>, IntoIter: Send + 'a> + 'a,
+    ) -> RawEvents<'a> {
+        RawEvents {
+            readers: Box::new(readers.into_iter()),
+            current: None,
+            shard: Shard::ALL,
+            next_ordinal: 0,
+            warned: 0,
+            on_warning: Box::new(|w| eprintln!("quarry: warning: {w}")),
+        }
+    }
+
+    /// Marks the events of this shard as kept (default: all).
+    pub fn shard(mut self, shard: Shard) -> Self {
+        self.shard = shard;
+        self
+    }
+
+    /// Where the readers' warnings go.
+    pub fn on_warning(mut self, f: impl FnMut(&str) + Send + 'a) -> Self {
+        self.on_warning = Box::new(f);
+        self
+    }
+
+    fn flush_warnings(&mut self) {
+        if let Some(r) = &self.current {
+            for w in &r.warnings()[self.warned..] {
+                (self.on_warning)(w);
+            }
+            self.warned = r.warnings().len();
+        }
+    }
+}
+
+impl Iterator for RawEvents<'_> {
+    type Item = Result<NumberedEvent, CsvError>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        loop {
+            if self.current.is_none() {
+                match self.readers.next()? {
+                    Ok(r) => {
+                        self.current = Some(r);
+                        self.warned = 0;
+                        self.flush_warnings();
+                    }
+                    Err(e) => return Some(Err(e)),
+                }
+            }
+            let reader = self.current.as_mut()?;
+            match reader.next_raw() {
+                None => {
+                    self.flush_warnings();
+                    self.current = None;
+                }
+                Some(Err(e)) => return Some(Err(e)),
+                Some(Ok(raw)) => {
+                    let ordinal = self.next_ordinal;
+                    self.next_ordinal += 1;
+                    let kept = self.shard.keeps(ordinal);
+                    return Some(Ok(NumberedEvent { ordinal, raw, kept }));
+                }
+            }
+        }
+    }
+}
+
+/// The rows of one event, prepared for a sink on the worker thread.
+#[derive(Debug)]
+pub struct EventRows<P> {
+    /// The rows in the sink's prepared form (e.g. CSV text).
+    pub prepared: P,
+    /// Each row's status name, in row order.
+    pub statuses: Vec<&'static str>,
+    /// The reader's reason, if the event was rejected.
+    pub bad: Option<BadReason>,
+}
+
+/// What a worker makes of one [`NumberedEvent`].
+#[derive(Debug)]
+pub enum Outcome<P> {
+    /// The event's rows.
+    Rows(EventRows<P>),
+    /// Another shard's event: no output.
+    OtherShard,
+    /// A bad event under the stop policy: the run ends with this message
+    /// (the reader's `file:line: column …` error and the event).
+    Stop(String),
+}
+
+/// Parses one event (on a worker thread), reconstructs it under every
+/// hypothesis of the worker's pipeline, and prepares its rows for the sink
+/// `S`. Events of other shards are not parsed under the skip policy; under
+/// the stop policy they are, so that a bad event stops every shard alike.
+pub fn outcome_of<S: RowSink>(
+    worker: &mut Worker<'_>,
+    policy: ErrorPolicy,
+    event: NumberedEvent,
+) -> Outcome<S::Prepared> {
+    let NumberedEvent { ordinal, raw, kept } = event;
+    if !kept && policy == ErrorPolicy::Skip {
+        return Outcome::OtherShard;
+    }
+    let record = raw.parse();
+    if let (Record::Bad(bad), ErrorPolicy::Stop) = (&record, policy) {
+        let id = match bad.id {
+            Some(id) => format!("event {id}"),
+            None => format!("event '{}'", bad.raw_id),
+        };
+        return Outcome::Stop(format!(
+            "{} ({id}; stopped at the first bad event, use --on-bad skip to go on)",
+            bad.error
+        ));
+    }
+    if !kept {
+        return Outcome::OtherShard;
+    }
+    let (rows, bad) = rows_of(worker, ordinal, record);
+    Outcome::Rows(EventRows {
+        prepared: S::prepare(&rows),
+        statuses: rows.iter().map(|r| r.status).collect(),
+        bad,
+    })
+}
+
+/// The rows of one parsed record, one per hypothesis of the worker's
+/// pipeline, and the reader's reason if it was rejected (then every row is
+/// `bad_input` with the reader's message, and the event id when it parsed).
+///
+/// ```
+/// use quarry::csv::{EventReader, ReadOptions, Record};
+/// let text = "event,kind,pt,eta,phi,mass\n7,jet,x,0,0,5\n";
+/// let mut reader = EventReader::from_reader(std::io::Cursor::new(text), "a.csv",
+///     ReadOptions::default()).unwrap();
+/// let record = reader.next().unwrap().unwrap();
+/// assert!(matches!(record, Record::Bad(_)));
+/// let pipeline = quarry::Pipeline::builder().preset("ttbar-ljets").preset("bz-2l").build().unwrap();
+/// let (rows, bad) = quarry::stream::rows_of(&mut pipeline.worker(), 0, record);
+/// assert!(bad.is_some());
+/// assert_eq!(rows.len(), 2);
+/// assert!(rows.iter().all(|r| r.status == "bad_input" && r.event == Some(7)));
+/// assert!(rows[0].reason.starts_with("a.csv:2:"), "{}", rows[0].reason);
+/// ```
+pub fn rows_of(
+    worker: &mut Worker<'_>,
+    ordinal: u64,
+    record: Record,
+) -> (Vec<Row>, Option<BadReason>) {
+    match record {
+        Record::Good(event) => {
+            let rows = worker
+                .reconstruct(event)
+                .iter()
+                .map(|r| Row::from_reconstruction(ordinal, r))
+                .collect();
+            (rows, None)
+        }
+        Record::Bad(bad) => {
+            let reason = bad.error.to_string();
+            let rows = worker
+                .pipeline()
+                .hypotheses()
+                .iter()
+                .map(|h| Row::bad_input(ordinal, bad.id, h.name(), &reason))
+                .collect();
+            (rows, Some(bad.reason()))
+        }
     }
 }
 

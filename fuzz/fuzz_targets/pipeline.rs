@@ -1,7 +1,8 @@
 //! Fuzzes the whole per-event path as `quarry reco` runs it: CSV bytes →
 //! `EventReader` (skip policy) → `Pipeline` worker (selection, event
-//! variables, assignment search per hypothesis, optional kinematic fit) or
-//! `Pipeline::bad_input` for rejected events.
+//! variables, assignment search per hypothesis, optional kinematic fit) for
+//! good events, and `quarry::stream::rows_of` (the CLI's own code) for
+//! rejected ones.
 //!
 //! Properties checked beyond "no panic": every record read yields exactly
 //! one result per hypothesis (so output rows = input events × hypotheses),
@@ -22,22 +23,22 @@ fuzz_target!(|data: &[u8]| {
     let out = read_all(bytes, ErrorPolicy::Skip, quarry::csv::DEFAULT_MAX_OBJECTS);
     let mut worker = pipeline.worker();
     let mut rows = 0usize;
-    for record in &out.records {
-        let (id, results) = match record {
+    for (ordinal, record) in out.records.iter().enumerate() {
+        match record {
             Record::Good(event) => {
                 check_good_event(event, quarry::csv::DEFAULT_MAX_OBJECTS);
-                (event.id, worker.reconstruct(event.clone()))
+                let results = worker.reconstruct(event.clone());
+                check_reconstructions(pipeline, event.id, &results);
+                rows += results.len();
             }
-            Record::Bad(bad) => {
-                let id = bad.id.unwrap_or(0);
-                (id, pipeline.bad_input(id, &bad.to_string()))
+            Record::Bad(_) => {
+                let (bad_rows, reason) =
+                    quarry::stream::rows_of(&mut worker, ordinal as u64, record.clone());
+                assert!(reason.is_some());
+                assert!(bad_rows.iter().all(|r| r.status == "bad_input"));
+                rows += bad_rows.len();
             }
-        };
-        check_reconstructions(pipeline, id, &results);
-        if matches!(record, Record::Bad(_)) {
-            assert!(results.iter().all(|r| r.status == quarry::Status::BadInput));
         }
-        rows += results.len();
     }
     assert_eq!(
         rows,

@@ -1,16 +1,15 @@
 //! `quarry reco`: stream events through the pipeline, write one row per
 //! event per hypothesis, in input order.
 
-use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 
 use quarry::assign::{BtagPolicy, SearchConfig};
-use quarry::csv::{BadReason, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, RowWriter};
+use quarry::csv::{ErrorPolicy, ReadOptions};
 use quarry::event::Selection;
-use quarry::output::Row;
-use quarry::stream::{ordered_chunked_map, Shard};
-use quarry::{Pipeline, Reconstruction};
+use quarry::output::{CsvSink, RowSink};
+use quarry::stream::{ordered_chunked_map, outcome_of, Outcome, RawEvents};
+use quarry::Pipeline;
 
 use super::args::{BtagMode, OnBad, RecoArgs};
 use super::summary::{progress_bar, Summary};
@@ -69,6 +68,7 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
     };
     let mut b = Pipeline::builder()
         .fit(args.fit)
+        .btag_threshold(btag)
         .selection(selection)
         .search_config(SearchConfig {
             btag: match args.btag_mode {
@@ -87,141 +87,6 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
         b = b.hypothesis_arg(h);
     }
     b.build().map_err(|e| Failure::Usage(e.to_string()))
-}
-
-/// Every input, one after the other, as `(ordinal, raw event, kept)`:
-/// events grouped but not parsed, so that parsing runs on the workers.
-/// `kept` says whether the event belongs to this shard; events of other
-/// shards pass too (unparsed under the skip policy) because under the stop
-/// policy the first bad event in any shard stops the run, so that every
-/// shard of a job array stops alike.
-struct Records<'a> {
-    inputs: std::slice::Iter<'a, PathBuf>,
-    current: Option<EventReader>,
-    options: ReadOptions,
-    shard: Shard,
-    next_ordinal: u64,
-    warned: usize,
-    quiet: bool,
-}
-
-impl Records<'_> {
-    fn flush_warnings(&mut self) {
-        if let Some(r) = &self.current {
-            for w in &r.warnings()[self.warned..] {
-                if !self.quiet {
-                    eprintln!("quarry: warning: {w}");
-                }
-            }
-            self.warned = r.warnings().len();
-        }
-    }
-}
-
-impl Iterator for Records<'_> {
-    type Item = Result<(u64, RawEvent, bool), Failure>;
-
-    fn next(&mut self) -> Option<Self::Item> {
-        loop {
-            if self.current.is_none() {
-                let path = self.inputs.next()?;
-                match EventReader::open(path, self.options) {
-                    Ok(r) => {
-                        self.current = Some(r);
-                        self.warned = 0;
-                        self.flush_warnings();
-                    }
-                    Err(e) => return Some(Err(Failure::Input(e.to_string()))),
-                }
-            }
-            let reader = self.current.as_mut()?;
-            match reader.next_raw() {
-                None => {
-                    self.flush_warnings();
-                    self.current = None;
-                }
-                Some(Err(e)) => return Some(Err(Failure::Input(e.to_string()))),
-                Some(Ok(raw)) => {
-                    let ordinal = self.next_ordinal;
-                    self.next_ordinal += 1;
-                    return Some(Ok((ordinal, raw, self.shard.keeps(ordinal))));
-                }
-            }
-        }
-    }
-}
-
-/// What a worker makes of one raw event.
-enum Outcome {
-    /// The event's rows already formatted as CSV text (formatting runs on
-    /// the workers; the writing thread only copies bytes), each row's
-    /// status, and the reader's reason if the event was rejected.
-    Rows(Vec<u8>, Vec<&'static str>, Option<BadReason>),
-    /// Another shard's event that needs no output.
-    OtherShard,
-    /// The run ends with this failure: a bad event under the stop policy.
-    Stop(Failure),
-}
-
-/// Parses a raw event (on a worker thread), reconstructs it and formats
-/// its rows.
-fn outcome_of(
-    worker: &mut quarry::Worker<'_>,
-    pipeline: &Pipeline,
-    policy: ErrorPolicy,
-    (ordinal, raw, kept): (u64, RawEvent, bool),
-) -> Outcome {
-    if !kept && policy == ErrorPolicy::Skip {
-        return Outcome::OtherShard;
-    }
-    let record = raw.parse();
-    if let (Record::Bad(bad), ErrorPolicy::Stop) = (&record, policy) {
-        let id = match bad.id {
-            Some(id) => format!("event {id}"),
-            None => format!("event '{}'", bad.raw_id),
-        };
-        return Outcome::Stop(Failure::Input(format!(
-            "{} ({id}; stopped at the first bad event, use --on-bad skip to go on)",
-            bad.error
-        )));
-    }
-    if !kept {
-        return Outcome::OtherShard;
-    }
-    let (rows, bad) = rows_of(worker, pipeline, ordinal, record);
-    let mut bytes = Vec::with_capacity(256 * rows.len());
-    for row in &rows {
-        row.write_csv(&mut bytes);
-    }
-    Outcome::Rows(bytes, rows.iter().map(|r| r.status).collect(), bad)
-}
-
-/// The rows of one record, and the reader's reason if it was rejected.
-fn rows_of(
-    worker: &mut quarry::Worker<'_>,
-    pipeline: &Pipeline,
-    ordinal: u64,
-    record: Record,
-) -> (Vec<Row>, Option<BadReason>) {
-    match record {
-        Record::Good(event) => {
-            let recs: Vec<Reconstruction> = worker.reconstruct(event);
-            let rows = recs
-                .iter()
-                .map(|r| Row::from_reconstruction(ordinal, r))
-                .collect();
-            (rows, None)
-        }
-        Record::Bad(bad) => {
-            let reason = bad.error.to_string();
-            let rows = pipeline
-                .hypotheses()
-                .iter()
-                .map(|h| Row::bad_input(ordinal, bad.id, h.name(), &reason))
-                .collect();
-            (rows, Some(bad.reason()))
-        }
-    }
 }
 
 /// Refuses an output that exists but is not a regular file (a device such
@@ -274,28 +139,27 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
         OnBad::Skip => ErrorPolicy::Skip,
         OnBad::Stop => ErrorPolicy::Stop,
     };
-    let mut records = Records {
-        inputs: args.inputs.iter(),
-        current: None,
-        options: ReadOptions::default().with_policy(policy),
-        shard: args.shard.unwrap_or_default(),
-        next_ordinal: 0,
-        warned: 0,
-        quiet: args.quiet,
-    };
+    let quiet = args.quiet;
+    let records = RawEvents::open(&args.inputs, ReadOptions::default().with_policy(policy))
+        .shard(args.shard.unwrap_or_default())
+        .on_warning(move |w| {
+            if !quiet {
+                eprintln!("quarry: warning: {w}");
+            }
+        })
+        .map(|r| r.map_err(|e| Failure::Input(e.to_string())));
     let interrupted = stop_on_signal();
     let mut read = 0u64;
-    let mut writer: RowWriter<Row> =
-        RowWriter::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
+    let mut writer = CsvSink::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
     let mut summary = Summary::start();
     let started = std::time::SystemTime::now();
     let bar = progress_bar(!args.no_progress && !args.quiet);
     let result = pool.install(|| {
         ordered_chunked_map(
-            &mut records,
+            records,
             args.chunk_size,
             || pipeline.worker(),
-            |worker, item| outcome_of(worker, &pipeline, policy, item),
+            |worker, item| outcome_of::<CsvSink>(worker, policy, item),
             |outcome| {
                 if interrupted.load(Ordering::Relaxed) {
                     return Err(Failure::Interrupted(
@@ -303,22 +167,22 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                     ));
                 }
                 read += 1;
-                let (bytes, statuses, bad) = match outcome {
-                    Outcome::Rows(bytes, statuses, bad) => (bytes, statuses, bad),
+                let rows = match outcome {
+                    Outcome::Rows(rows) => rows,
                     Outcome::OtherShard => return Ok(()),
-                    Outcome::Stop(failure) => {
+                    Outcome::Stop(message) => {
                         summary.stopped = true;
-                        return Err(failure);
+                        return Err(Failure::Input(message));
                     }
                 };
                 summary.processed += 1;
-                if let Some(reason) = bad {
+                if let Some(reason) = rows.bad {
                     *summary.bad_by_reason.entry(reason.as_str()).or_default() += 1;
                 }
                 writer
-                    .write_encoded(&bytes)
+                    .write(rows.prepared)
                     .map_err(|e| Failure::Output(e.to_string()))?;
-                for status in statuses {
+                for status in rows.statuses {
                     *summary.by_status.entry(status).or_default() += 1;
                     summary.rows += 1;
                 }

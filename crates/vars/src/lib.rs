@@ -69,14 +69,18 @@ impl std::error::Error for VarsError {}
 /// One object of an event that contributes to ST, by its position in the
 /// (selected) event.
 ///
-/// Positions are 0-based into `event.jets` and into `event.leptons()`
-/// (electrons first, then muons) — *not* the input-file `index` fields.
+/// Positions are 0-based into `event.jets`, `event.electrons` and
+/// `event.muons` — *not* the input-file `index` fields. Each lepton names
+/// its own flavour's list, so a caller never depends on the order of
+/// [`Event::leptons`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
 pub enum ObjectRef {
     /// `event.jets[i]`.
     Jet(usize),
-    /// The i-th item of `event.leptons()`.
-    Lepton(usize),
+    /// `event.electrons[i]`.
+    Electron(usize),
+    /// `event.muons[i]`.
+    Muon(usize),
     /// The missing transverse momentum.
     Met,
 }
@@ -85,7 +89,8 @@ impl fmt::Display for ObjectRef {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             ObjectRef::Jet(i) => write!(f, "jet {i}"),
-            ObjectRef::Lepton(i) => write!(f, "lepton {i}"),
+            ObjectRef::Electron(i) => write!(f, "electron {i}"),
+            ObjectRef::Muon(i) => write!(f, "muon {i}"),
             ObjectRef::Met => f.write_str("MET"),
         }
     }
@@ -142,7 +147,8 @@ pub fn st(event: &Event) -> f64 {
 fn object_pt(event: &Event, r: ObjectRef) -> Result<f64, VarsError> {
     match r {
         ObjectRef::Jet(i) => event.jets.get(i).map(|j| j.p4.pt()),
-        ObjectRef::Lepton(i) => event.leptons().nth(i).map(|l| l.p4.pt()),
+        ObjectRef::Electron(i) => event.electrons.get(i).map(|l| l.p4.pt()),
+        ObjectRef::Muon(i) => event.muons.get(i).map(|l| l.p4.pt()),
         ObjectRef::Met => Some(event.met.pt()),
     }
     .ok_or(VarsError::NoSuchObject(r))
@@ -385,7 +391,7 @@ mod tests {
             ObjectRef::Jet(2),
             ObjectRef::Jet(3),
             ObjectRef::Jet(0),
-            ObjectRef::Lepton(0),
+            ObjectRef::Muon(0),
             ObjectRef::Met,
         ];
         assert_relative_eq!(st_unclaimed(&e, &used).unwrap(), 60.0, max_relative = 1e-12);
@@ -401,23 +407,29 @@ mod tests {
     fn unclaimed_rejects_missing_objects() {
         let e = ttbar_like();
         assert_eq!(
-            st_unclaimed(&e, &[ObjectRef::Lepton(1)]),
-            Err(VarsError::NoSuchObject(ObjectRef::Lepton(1)))
+            st_unclaimed(&e, &[ObjectRef::Muon(1)]),
+            Err(VarsError::NoSuchObject(ObjectRef::Muon(1)))
         );
         assert!(st_unclaimed(&e, &[ObjectRef::Jet(5)]).is_err());
     }
 
     #[test]
-    fn leptons_index_electrons_then_muons() {
+    fn leptons_are_named_by_flavour() {
         let mut e = Event::new(1);
         e.electrons = vec![lepton(Flavour::Electron, 30.0, 0.0, 0.0, 1)]; // pT 30
         e.muons = vec![lepton(Flavour::Muon, 0.0, 70.0, 0.0, -1)]; // pT 70
-                                                                   // ST = 30 + 70 = 100; claiming lepton 1 (the muon) leaves 30.
+                                                                   // ST = 30 + 70 = 100; claiming the muon leaves 30, the electron 70.
         assert_relative_eq!(
-            st_unclaimed(&e, &[ObjectRef::Lepton(1)]).unwrap(),
+            st_unclaimed(&e, &[ObjectRef::Muon(0)]).unwrap(),
             30.0,
             max_relative = 1e-12
         );
+        assert_relative_eq!(
+            st_unclaimed(&e, &[ObjectRef::Electron(0)]).unwrap(),
+            70.0,
+            max_relative = 1e-12
+        );
+        assert!(st_unclaimed(&e, &[ObjectRef::Electron(1)]).is_err());
     }
 
     #[test]
