@@ -27,61 +27,17 @@ elapsed() { awk -v a="$started" -v b="$EPOCHREALTIME" 'BEGIN { printf "%.1f", b 
 say() { printf '[slurm-ci %6ss] %s\n' "$(elapsed)" "$*"; }
 fail() { say "FAILED: $*"; exit 1; }
 
-[ "$(id -u)" = 0 ] || fail "must run as root (installs packages, starts slurmctld/slurmd as SlurmUser=root)"
 [ -x "$quarry" ] || fail "no quarry binary at $quarry (cargo build --release --bin quarry)"
-
-if ! command -v slurmctld >/dev/null || ! command -v munged >/dev/null; then
-  say "installing slurm-wlm and munge from Debian's packages"
-  apt-get update -qq
-  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq slurm-wlm munge >/dev/null
-fi
-say "$(slurmctld -V), munge $(munged --version 2>&1 | awk '{print $2; exit}')"
 
 state=$(mktemp -d /tmp/quarry-slurm-ci.XXXXXX)
 chmod 755 "$state"
 work="$state/work"
-mkdir -p "$state/ctld" "$state/d" "$work"
-host=$(hostname -s)
-mem_mb=$(awk '/MemTotal/ {print int($2 / 1024) - 512}' /proc/meminfo)
-export SLURM_CONF="$state/slurm.conf"
-cat >"$SLURM_CONF" <<CONF
-ClusterName=quarryci
-SlurmctldHost=$host
-SlurmUser=root
-AuthType=auth/munge
-StateSaveLocation=$state/ctld
-SlurmdSpoolDir=$state/d
-SlurmctldPidFile=$state/slurmctld.pid
-SlurmdPidFile=$state/slurmd.pid
-SlurmctldLogFile=$state/slurmctld.log
-SlurmdLogFile=$state/slurmd.log
-ProctrackType=proctrack/linuxproc
-TaskPlugin=task/none
-JobAcctGatherType=jobacct_gather/none
-AccountingStorageType=accounting_storage/none
-SelectType=select/cons_tres
-SelectTypeParameters=CR_Core
-MpiDefault=none
-ReturnToService=2
-SchedulerType=sched/backfill
-NodeName=$host CPUs=2 RealMemory=$mem_mb State=UNKNOWN
-PartitionName=ci Nodes=$host Default=YES MaxTime=INFINITE State=UP
-CONF
-
-pids=()
-stop_daemons() {
-  local pid
-  for pid in "${pids[@]}"; do
-    kill "$pid" 2>/dev/null || true
-  done
-  for pid in "${pids[@]}"; do
-    for _ in $(seq 50); do kill -0 "$pid" 2>/dev/null || break; sleep 0.1; done
-  done
-  pids=()
-}
+mkdir -p "$work"
+# shellcheck source=batch/slurm/local-slurm.sh
+. "$slurm_dir/local-slurm.sh"
 on_exit() {
   local rc=$?
-  stop_daemons
+  stop_local_slurm
   if [ "$rc" -ne 0 ]; then
     say "logs kept in $state"
     tail -n 20 "$state"/slurmctld.log "$state"/slurmd.log 2>/dev/null || true
@@ -91,28 +47,7 @@ on_exit() {
   say "Slurm CI step took $(elapsed) s (exit $rc)"
 }
 trap on_exit EXIT
-
-mkdir -p /run/munge
-chown munge:munge /run/munge
-if ! pgrep -x munged >/dev/null; then
-  su -s /bin/sh munge -c munged
-  for _ in $(seq 50); do [ -s /run/munge/munged.pid ] && break; sleep 0.1; done
-  pids+=("$(cat /run/munge/munged.pid)")
-  say "munged started (pid ${pids[-1]})"
-fi
-slurmctld -f "$SLURM_CONF"
-for _ in $(seq 100); do [ -s "$state/slurmctld.pid" ] && break; sleep 0.1; done
-pids+=("$(cat "$state/slurmctld.pid")")
-slurmd -f "$SLURM_CONF"
-for _ in $(seq 100); do [ -s "$state/slurmd.pid" ] && break; sleep 0.1; done
-pids+=("$(cat "$state/slurmd.pid")")
-say "slurmctld (pid ${pids[-2]}) and slurmd (pid ${pids[-1]}) started"
-for i in $(seq 120); do
-  [ "$(sinfo -h -n "$host" -o %t 2>/dev/null)" = idle ] && break
-  [ "$i" = 120 ] && fail "node $host not idle after 60 s: $(sinfo 2>&1)"
-  sleep 0.5
-done
-say "sinfo: $(sinfo -h -o '%P %D %t %c')"
+start_local_slurm "$state"
 
 # The demo events (three files read as one stream), three hypotheses in
 # non-alphabetical order, with the fit.
@@ -176,5 +111,5 @@ done
 same run3/reco.csv
 "$quarry" merge --check run3/parts/reco-*.csv
 
-stop_daemons
+stop_local_slurm
 say "daemons stopped; Slurm workflow checks passed"
