@@ -1,4 +1,4 @@
-//! Streaming event files through a [`Pipeline`], as `quarry reco` does:
+//! Streaming event files through a [`Pipeline`](crate::Pipeline), as `quarry reco` does:
 //! the reader side ([`RawEvents`]: files → events grouped but not parsed,
 //! numbered by their position in the whole stream, marked with their
 //! [`Shard`]), the worker side ([`outcome_of`]: parse, reconstruct, make
