@@ -1,4 +1,5 @@
-//! Throughput of the W-mass neutrino solver (quarry::neutrino).
+//! Throughput of the W-mass neutrino solver (quarry::neutrino) and of the
+//! dilepton two-neutrino solver (quarry::neutrino::dilepton).
 //!
 //! Target: ≥ 50 M real-case solutions per second per core. Run with
 //! `cargo bench --bench neutrino -- --warm-up-time 1 --measurement-time 3`.
@@ -8,6 +9,7 @@ use std::hint::black_box;
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use quarry::lorentz::FourMomentum;
+use quarry::neutrino::dilepton::{DileptonEvent, DileptonMasses, DileptonSolver};
 use quarry::neutrino::{ComplexStrategy, SolutionCase, WMassSolver};
 use quarry::pdg::MUON_MASS;
 
@@ -65,7 +67,63 @@ fn run(c: &mut Criterion, name: &str, solver: WMassSolver, inputs: &[(FourMoment
     group.finish();
 }
 
+/// Exact dilepton configurations: random visible objects and neutrinos, the
+/// MET their sum, and each input's four masses taken from its own sums.
+fn dilepton_batch() -> Vec<(DileptonEvent, DileptonSolver)> {
+    let mut rng = Xorshift(0x2545_f491_4f6c_dd1d);
+    let mut obj = |lo: f64, hi: f64, m: f64| {
+        FourMomentum::from_pt_eta_phi_m(
+            rng.uniform(lo, hi),
+            rng.uniform(-2.5, 2.5),
+            rng.uniform(-PI, PI),
+            m,
+        )
+    };
+    (0..1024)
+        .map(|_| {
+            let (la, lb) = (obj(20.0, 200.0, MUON_MASS), obj(20.0, 200.0, MUON_MASS));
+            let (ba, bb) = (obj(30.0, 300.0, 4.8), obj(30.0, 300.0, 4.8));
+            let (na, nb) = (obj(10.0, 200.0, 0.0), obj(10.0, 200.0, 0.0));
+            let solver = DileptonSolver {
+                masses: DileptonMasses {
+                    w_a: (la + na).m(),
+                    w_b: (lb + nb).m(),
+                    top_a: (la + na + ba).m(),
+                    top_b: (lb + nb + bb).m(),
+                },
+            };
+            let ev = DileptonEvent {
+                lepton_a: la,
+                lepton_b: lb,
+                bjet_a: ba,
+                bjet_b: bb,
+                met: (na.px() + nb.px(), na.py() + nb.py()),
+            };
+            (ev, solver)
+        })
+        .collect()
+}
+
+fn bench_dilepton(c: &mut Criterion) {
+    let inputs = dilepton_batch();
+    let mut group = c.benchmark_group("neutrino");
+    group.throughput(Throughput::Elements(inputs.len() as u64));
+    group.bench_function("dilepton_solve", |b| {
+        b.iter(|| {
+            let mut n = 0;
+            for (ev, solver) in black_box(&inputs) {
+                if let Ok(s) = solver.solve(ev) {
+                    n += s.len();
+                }
+            }
+            black_box(n)
+        })
+    });
+    group.finish();
+}
+
 fn bench(c: &mut Criterion) {
+    bench_dilepton(c);
     let real = batch(SolutionCase::Real);
     let complex = batch(SolutionCase::AdjustedMet);
     run(c, "real_case", WMassSolver::default(), &real);

@@ -1,4 +1,7 @@
-//! The neutrino's longitudinal momentum from the W-mass constraint.
+//! The neutrino's longitudinal momentum from the W-mass constraint, and the
+//! two neutrinos of dilepton final states ([`dilepton`]: the analytic
+//! solution of the dilepton kinematic equations, L. Sonnenschein, Phys. Rev.
+//! D 73 (2006) 054015).
 //!
 //! In a leptonic W decay the neutrino escapes; its transverse momentum is
 //! taken from the missing transverse momentum (MET), and its pz is fixed by
@@ -73,6 +76,8 @@
 //! }
 //! ```
 #![deny(missing_docs)]
+
+pub mod dilepton;
 
 use quarry_lorentz::{FourMomentum, Momentum};
 
