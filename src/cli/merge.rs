@@ -2,7 +2,10 @@
 //! an unsharded run writes, after checking their manifests
 //! (`quarry::merge`).
 
+use std::io::{self, Write};
 use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 use std::time::{Instant, SystemTime};
 
 use clap::Args;
@@ -30,6 +33,7 @@ pub const MERGE_HELP: &str = concat!(
     "  1  usage error (bad option, refused output path)\n",
     "  2  a shard output cannot be read\n",
     "  3  the merged output cannot be written\n",
+    "  4  interrupted by SIGINT or SIGTERM: nothing is left under the output name\n",
     "  5  refused: shards missing, given twice, inconsistent, or not matching\n",
     "     their manifests; every problem is listed, nothing is written\n",
 );
@@ -54,6 +58,31 @@ pub struct MergeArgs {
     /// Print nothing on success.
     #[arg(short, long)]
     pub quiet: bool,
+}
+
+/// Passes bytes through until SIGINT or SIGTERM arrives, then fails every
+/// write: the merge stops at its next row and the uncommitted output (a
+/// hidden temporary file) is removed, as for `quarry reco` — which matters
+/// when a batch system ends a merge job at its time limit.
+struct StopOnSignal<W> {
+    inner: W,
+    stop: Arc<AtomicBool>,
+}
+
+impl<W: Write> Write for StopOnSignal<W> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        if self.stop.load(Ordering::Relaxed) {
+            // Not ErrorKind::Interrupted, which write_all would retry.
+            return Err(io::Error::other(
+                "interrupted by a signal (SIGINT or SIGTERM)",
+            ));
+        }
+        self.inner.write(buf)
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        self.inner.flush()
+    }
 }
 
 fn failure(e: MergeError) -> Failure {
@@ -96,9 +125,24 @@ pub fn run(args: &MergeArgs) -> Result<(), Failure> {
         }
         return Ok(());
     };
-    let mut sink =
-        quarry::csv::AtomicOutput::create(out).map_err(|e| Failure::Output(e.to_string()))?;
-    let counts = set.merge_into(&mut sink).map_err(failure)?;
+    let stop = super::reco::stop_on_signal();
+    let mut sink = StopOnSignal {
+        inner: quarry::csv::AtomicOutput::create(out)
+            .map_err(|e| Failure::Output(e.to_string()))?,
+        stop: Arc::clone(&stop),
+    };
+    let counts = match set.merge_into(&mut sink) {
+        Ok(counts) => counts,
+        Err(_) if stop.load(Ordering::Relaxed) => {
+            drop(sink);
+            return Err(Failure::Interrupted(format!(
+                "interrupted by a signal (SIGINT or SIGTERM); {} not written",
+                out.display()
+            )));
+        }
+        Err(e) => return Err(failure(e)),
+    };
+    let sink = sink.inner;
     manifest::remove_stale(out)
         .map_err(|e| Failure::Output(format!("{}: {e}", manifest::manifest_path(out).display())))?;
     sink.commit().map_err(|e| Failure::Output(e.to_string()))?;

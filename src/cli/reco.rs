@@ -111,7 +111,7 @@ pub fn check_output(path: &std::path::Path) -> Result<(), Failure> {
 /// behind. A second signal ends the process at once, for a run blocked on
 /// its input. Without a handler (it could not be installed) the default
 /// action still ends the run, leaving only the hidden temporary file.
-fn stop_on_signal() -> Arc<AtomicBool> {
+pub fn stop_on_signal() -> Arc<AtomicBool> {
     let flag = Arc::new(AtomicBool::new(false));
     let seen = Arc::clone(&flag);
     let _ = ctrlc::set_handler(move || {
