@@ -27,6 +27,9 @@ enum Sink {
 struct TempGuard {
     tmp: PathBuf,
     committed: bool,
+    /// The permissions of the file the output replaces, given to the new
+    /// file before the rename, so an existing output keeps its mode.
+    keep_mode: Option<fs::Permissions>,
 }
 
 impl Drop for TempGuard {
@@ -77,6 +80,12 @@ impl AtomicOutput {
         }
         let name = path.display().to_string();
         refuse_non_regular(path, &name)?;
+        // A symbolic link is written through: the file it points to is
+        // replaced and the link stays a link.
+        let path = &follow_links(path).map_err(|source| CsvError::Write {
+            file: name.clone(),
+            source,
+        })?;
         let file_name = path.file_name().ok_or_else(|| CsvError::Write {
             file: name.clone(),
             source: io::Error::new(io::ErrorKind::InvalidInput, "not a file name"),
@@ -85,6 +94,19 @@ impl AtomicOutput {
             Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
             _ => PathBuf::from("."),
         };
+        if !dir.is_dir() {
+            return Err(CsvError::Write {
+                file: name.clone(),
+                source: io::Error::new(
+                    io::ErrorKind::NotFound,
+                    format!(
+                        "output directory '{}' does not exist (quarry does not create directories)",
+                        dir.display()
+                    ),
+                ),
+            });
+        }
+        let keep_mode = fs::metadata(path).ok().map(|m| m.permissions());
         let n = COUNTER.fetch_add(1, Ordering::Relaxed);
         let tmp = dir.join(format!(
             ".{}.tmp-{}-{n}",
@@ -98,6 +120,7 @@ impl AtomicOutput {
         let guard = TempGuard {
             tmp,
             committed: false,
+            keep_mode,
         };
         let buf = BufWriter::new(file);
         let sink = if gz {
@@ -117,6 +140,11 @@ impl AtomicOutput {
         &self.name
     }
 
+    /// The hidden temporary file being written, if the output is a file.
+    pub(crate) fn temp_path(&self) -> Option<&Path> {
+        self.target.as_ref().map(|(_, guard)| guard.tmp.as_path())
+    }
+
     /// Flushes everything, closes the file and renames it into place.
     pub fn commit(self) -> Result<(), CsvError> {
         let AtomicOutput { sink, target, name } = self;
@@ -132,6 +160,9 @@ impl AtomicOutput {
         if let Some((path, mut guard)) = target {
             // Checked again here: the target may have appeared since create.
             refuse_non_regular(&path, &name)?;
+            if let Some(mode) = guard.keep_mode.take() {
+                fs::set_permissions(&guard.tmp, mode).map_err(werr)?;
+            }
             fs::rename(&guard.tmp, &path).map_err(werr)?;
             guard.committed = true;
         }
@@ -156,6 +187,26 @@ fn refuse_non_regular(path: &Path, name: &str) -> Result<(), CsvError> {
         }),
         _ => Ok(()),
     }
+}
+
+/// The file a chain of symbolic links ends at (`path` itself if it is not
+/// a link, or if the chain ends at a name that does not exist yet).
+fn follow_links(path: &Path) -> io::Result<PathBuf> {
+    let mut path = path.to_path_buf();
+    // The kernel's own limit on links in one lookup (Linux: 40).
+    for _ in 0..40 {
+        match fs::symlink_metadata(&path) {
+            Ok(m) if m.file_type().is_symlink() => {
+                let target = fs::read_link(&path)?;
+                path = match path.parent() {
+                    Some(dir) => dir.join(target),
+                    None => target,
+                };
+            }
+            _ => return Ok(path),
+        }
+    }
+    Err(io::Error::other("too many levels of symbolic links"))
 }
 
 fn finish_file(w: BufWriter<File>) -> io::Result<()> {

@@ -328,6 +328,18 @@ impl<T: Serialize> RowWriter<T> {
         }
     }
 
+    /// The hidden temporary file the rows go to until
+    /// [`finish`](Self::finish) renames it into place; `None` for stdout.
+    /// A program that must end at once (a second signal, a watchdog) can
+    /// remove it, since no destructor runs on `std::process::exit`.
+    pub fn temp_path(&self) -> Option<&Path> {
+        match &self.state {
+            RowState::Fresh(out) | RowState::Encoded(out) => out.temp_path(),
+            RowState::Rows(csv) => csv.get_ref().temp_path(),
+            RowState::Moving => None,
+        }
+    }
+
     /// Flushes, closes and renames the output into place.
     pub fn finish(self) -> Result<(), CsvError> {
         match self.state {

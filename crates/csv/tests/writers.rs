@@ -115,6 +115,63 @@ fn unwritable_output_is_a_clear_error() {
         err.starts_with(&format!("{}: write error: ", path.display())),
         "{err}"
     );
+    // The missing directory is named, not just "No such file".
+    assert!(
+        err.contains(&format!(
+            "output directory '{}' does not exist",
+            dir.path().join("no-such-dir").display()
+        )),
+        "{err}"
+    );
+}
+
+/// `-o link` where `link` is a symbolic link: the file it points to gets
+/// the output and the link stays a link (docs/cli.md, "Outputs").
+#[cfg(unix)]
+#[test]
+fn a_symlinked_output_is_written_through() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::create_dir(dir.path().join("real")).unwrap();
+    let target = dir.path().join("real").join("out.csv");
+    std::fs::write(&target, "old\n").unwrap();
+    let link = dir.path().join("link.csv");
+    std::os::unix::fs::symlink("real/out.csv", &link).unwrap();
+    let mut w = RowWriter::create(&link).unwrap();
+    let tmp = w.temp_path().unwrap().to_path_buf();
+    assert_eq!(tmp.parent(), target.parent(), "temp file beside the target");
+    w.write(&Row {
+        event: 1,
+        status: "ok",
+        m_reco: 1.0,
+        chi2: None,
+    })
+    .unwrap();
+    w.finish().unwrap();
+    assert!(std::fs::symlink_metadata(&link)
+        .unwrap()
+        .file_type()
+        .is_symlink());
+    assert_eq!(
+        std::fs::read_to_string(&target).unwrap(),
+        "event,status,m_reco,chi2\n1,ok,1.0,\n"
+    );
+    assert!(!tmp.exists());
+}
+
+/// An existing output keeps its permission bits when it is replaced.
+#[cfg(unix)]
+#[test]
+fn an_existing_output_keeps_its_mode() {
+    use std::os::unix::fs::PermissionsExt;
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("out.csv");
+    std::fs::write(&path, "old\n").unwrap();
+    std::fs::set_permissions(&path, std::fs::Permissions::from_mode(0o640)).unwrap();
+    let mut w = EventWriter::create(&path).unwrap();
+    w.write(&Event::new(3)).unwrap();
+    w.finish().unwrap();
+    let mode = std::fs::metadata(&path).unwrap().permissions().mode() & 0o777;
+    assert_eq!(mode, 0o640);
 }
 
 /// Makes a FIFO with the system's `mkfifo`; `false` if that is unavailable.
