@@ -406,6 +406,13 @@ impl CsvSink {
             writer: quarry_csv::RowWriter::create(path)?,
         })
     }
+
+    /// The hidden temporary file the rows go to until the output is
+    /// committed; `None` for standard output
+    /// ([`quarry_csv::RowWriter::temp_path`]).
+    pub fn temp_path(&self) -> Option<&std::path::Path> {
+        self.writer.temp_path()
+    }
 }
 
 impl RowSink for CsvSink {

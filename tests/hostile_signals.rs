@@ -6,8 +6,10 @@
 //! after the last row. A process killed by SIGKILL runs no code at all, so
 //! **its temporary file stays behind**; it is hidden (leading dot) and its
 //! name says what it is, so a cleanup job can match it. SIGTERM (what batch
-//! systems send before a kill) and SIGINT are handled: the run stops after
-//! the current event, removes its temporary file and exits with code 4.
+//! systems send before a kill) and SIGINT are handled: the run stops within
+//! about a second, removes its temporary file and exits with code 4, also
+//! while one long event is being searched and while the reader waits on a
+//! stalled stdin.
 #![cfg(unix)]
 
 use std::path::Path;
@@ -127,6 +129,10 @@ fn kill_mid_run(signal: &str) {
     }
     let status = child.wait().unwrap();
     assert!(!status.success(), "{signal}: a killed run reported success");
+    if signal != "KILL" {
+        // docs/cli.md, exit codes: 4 = interrupted by SIGINT or SIGTERM.
+        assert_eq!(status.code(), Some(4), "{signal}: exit status {status:?}");
+    }
     // Nothing under the final name; at most the temporary file, with its
     // recognisable name.
     assert!(
@@ -181,4 +187,129 @@ fn a_finished_run_renames_its_output_into_place() {
     let text = std::fs::read_to_string(dir.path().join("out.csv")).unwrap();
     // Header + 50 events × 3 hypotheses.
     assert_eq!(text.lines().count(), 1 + 50 * 3);
+}
+
+/// Sends `signal` to `child` once `ready` holds, then checks that the run
+/// ends within `limit` with exit code 4 and leaves only `keep` in `dir`.
+fn signal_and_expect_exit_4(
+    child: &mut Child,
+    dir: &Path,
+    signal: &str,
+    ready: impl Fn() -> bool,
+    limit: Duration,
+    keep: &[&str],
+) {
+    let pid = child.id();
+    let deadline = Instant::now() + Duration::from_secs(60);
+    while !ready() {
+        assert!(child.try_wait().unwrap().is_none(), "quarry ended early");
+        assert!(Instant::now() < deadline, "quarry never got ready");
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    let sent = Instant::now();
+    let ok = Command::new("kill")
+        .args([format!("-{signal}"), pid.to_string()])
+        .status()
+        .unwrap()
+        .success();
+    assert!(ok);
+    let status = loop {
+        if let Some(s) = child.try_wait().unwrap() {
+            break s;
+        }
+        if sent.elapsed() > Duration::from_secs(30) {
+            child.kill().unwrap();
+            panic!("{signal}: still running 30 s after the signal");
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    };
+    let took = sent.elapsed();
+    eprintln!("{signal}: ended {took:?} after the signal, {status:?}");
+    assert_eq!(status.code(), Some(4), "{signal}: {status:?}");
+    assert!(took < limit, "{signal}: took {took:?} to stop");
+    let mut left: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    left.sort();
+    assert_eq!(left, keep, "{signal}: files left behind");
+}
+
+/// How long a stop may take: "about a second" (docs/cli.md) plus room for
+/// a loaded 2-core test machine.
+const STOP_LIMIT: Duration = Duration::from_secs(4);
+
+/// One event with 200 jets in two identical back-to-back groups, searched
+/// with b-tags ignored: every assignment has the same χ², so the search
+/// cannot prune (9 s at `--max-jets 20` on the 2-core development machine
+/// when this was written; 24 jets take far longer). The signal must reach
+/// the run while it is inside that one event.
+#[test]
+fn a_signal_stops_a_run_inside_one_long_event() {
+    use std::io::Write;
+    for signal in ["INT", "TERM"] {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("in.csv");
+        let mut w = std::io::BufWriter::new(std::fs::File::create(&path).unwrap());
+        writeln!(w, "event,kind,pt,eta,phi,mass,btag,charge").unwrap();
+        for j in 0..200 {
+            let phi = if j % 2 == 0 { 0.0 } else { 3.0 };
+            writeln!(w, "1,jet,100,0.0,{phi},10.0,0.5,").unwrap();
+        }
+        writeln!(w, "1,muon,80.0,0.3,1.0,0.10566,,-1").unwrap();
+        writeln!(w, "1,met,60.0,,-2.0,,,").unwrap();
+        drop(w);
+        let mut child = Command::new(BIN)
+            .current_dir(dir.path())
+            .args(["reco", "in.csv", "-o", "out.csv", "--no-progress", "-q"])
+            .args(["-H", "twtw-ljets", "--max-jets", "24", "-j", "1"])
+            .args(["--btag-mode", "ignore"])
+            .stdin(Stdio::null())
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .unwrap();
+        let pid = child.id();
+        let started = Instant::now();
+        let d = dir.path().to_path_buf();
+        // The temporary file exists once the run has started; the read of
+        // one event takes milliseconds, so after 1.5 s the run is searching.
+        let ready = move || {
+            started.elapsed() > Duration::from_millis(1500)
+                && other_files(&d).iter().any(|n| is_temp_name(n, pid))
+        };
+        signal_and_expect_exit_4(
+            &mut child,
+            dir.path(),
+            signal,
+            ready,
+            STOP_LIMIT,
+            &["in.csv"],
+        );
+    }
+}
+
+/// `(sleep 10) | quarry reco -`: the reader waits on a stdin that sends
+/// nothing. A signal must still end the run promptly, with no temporary
+/// file left.
+#[test]
+fn a_signal_stops_a_run_waiting_on_a_stalled_stdin() {
+    for signal in ["TERM", "INT"] {
+        let dir = tempfile::tempdir().unwrap();
+        let mut child = Command::new(BIN)
+            .current_dir(dir.path())
+            .args(["reco", "-", "-o", "out.csv", "--no-progress", "-q"])
+            .stdin(Stdio::piped())
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .unwrap();
+        // Keep the pipe open and silent, like `sleep 10 |`.
+        let stdin = child.stdin.take();
+        let pid = child.id();
+        let d = dir.path().to_path_buf();
+        let ready = move || other_files(&d).iter().any(|n| is_temp_name(n, pid));
+        signal_and_expect_exit_4(&mut child, dir.path(), signal, ready, STOP_LIMIT, &[]);
+        drop(stdin);
+    }
 }

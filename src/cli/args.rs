@@ -17,8 +17,11 @@ macro_rules! exit_codes_help {
   2  input error: an input cannot be opened or read, has no usable header,
      or (under --on-bad stop) holds a bad event
   3  output error: the output cannot be created or written
-  4  interrupted by SIGINT or SIGTERM (reco): nothing is left under the
-     output name
+  4  interrupted by SIGINT or SIGTERM (reco): the run stops within about
+     a second and nothing is left under the output name
+  5  merge refused the shards (missing, duplicated or from another run)
+  6  no event could be read (reco): the inputs hold no event, or every
+     event is bad_input; the output is still written
 "
     };
 }
@@ -50,7 +53,7 @@ pub enum Command {
     #[command(after_help = RECO_HELP)]
     Reco(RecoArgs),
     /// List or print the built-in hypotheses (presets).
-    #[command(subcommand)]
+    #[command(subcommand, after_help = PRESETS_HELP)]
     Presets(PresetsCommand),
     /// Write toy events (fictional 14 TeV run) with truth labels as CSV.
     #[command(after_help = GENERATE_HELP)]
@@ -64,6 +67,14 @@ pub enum Command {
     #[command(after_help = super::merge::MERGE_HELP)]
     Merge(super::merge::MergeArgs),
 }
+
+const PRESETS_HELP: &str = concat!(
+    "Examples:\n",
+    "  quarry presets list\n",
+    "  # start your own hypothesis from a preset\n",
+    "  quarry presets show ttbar-ljets > my-hypothesis.toml\n",
+    "  quarry reco events.csv -H my-hypothesis.toml\n",
+);
 
 const EVAL_HELP: &str = concat!(
     "Examples:\n",
@@ -172,7 +183,9 @@ pub struct RecoArgs {
     )]
     pub hypotheses: Vec<String>,
 
-    /// Also run the constrained kinematic fit on the best assignment.
+    /// Also run the constrained kinematic fit on each of the --best
+    /// assignments the search keeps, and report the one whose fit has the
+    /// smallest χ² (the fit columns and the masses are that fit's).
     #[arg(long)]
     pub fit: bool,
 
@@ -180,7 +193,7 @@ pub struct RecoArgs {
     #[arg(short, long, default_value = "-", value_name = "FILE")]
     pub output: PathBuf,
 
-    /// Worker threads (default: all cores).
+    /// Worker threads, 1-1024 (default: all cores).
     #[arg(short = 'j', long, value_name = "N")]
     pub threads: Option<usize>,
 
@@ -193,7 +206,8 @@ pub struct RecoArgs {
     #[arg(long, value_enum, default_value = "skip")]
     pub on_bad: OnBad,
 
-    /// Events per parallel chunk (bounds memory).
+    /// Events per parallel chunk, 1-65536 (bounds memory: three chunks are
+    /// held at once).
     #[arg(long, default_value_t = quarry::stream::DEFAULT_CHUNK, value_name = "N")]
     pub chunk_size: usize,
 
@@ -304,11 +318,16 @@ pub struct GenerateArgs {
     #[arg(long, default_value_t = 0, value_name = "ID")]
     pub first_id: u64,
 
-    /// Worker threads (default: all cores); the output does not depend on it.
+    /// Worker threads, 1-1024 (default: all cores); the output does not
+    /// depend on it.
     #[arg(short = 'j', long, value_name = "N")]
     pub threads: Option<usize>,
 
     /// Output file (`-` = stdout; `.gz` suffix gzips). Written atomically.
     #[arg(short, long, default_value = "-", value_name = "FILE")]
     pub output: PathBuf,
+
+    /// Do not print the one-line summary on stderr.
+    #[arg(short, long)]
+    pub quiet: bool,
 }

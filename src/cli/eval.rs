@@ -11,9 +11,15 @@ use quarry::eval::{
 };
 
 use super::args::EvalArgs;
+use super::protect::refuse_output_among_inputs;
 use super::Failure;
 
 pub fn run(args: &EvalArgs) -> Result<(), Failure> {
+    let inputs = || args.samples.iter().map(|s| s.path.as_path());
+    refuse_output_among_inputs(&args.output, inputs())?;
+    if let Some(table) = &args.table {
+        refuse_output_among_inputs(table, inputs())?;
+    }
     let mut records: Vec<EvalRecord> = Vec::new();
     for spec in &args.samples {
         records.extend(

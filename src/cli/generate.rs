@@ -7,6 +7,9 @@ use rayon::prelude::*;
 use super::args::{GenerateArgs, ProcessArg};
 use super::Failure;
 
+/// Heavy-quark mass when `--mass` is not given [GeV] (in `--help`).
+const DEFAULT_MASS: f64 = 1200.0;
+
 /// Events generated per parallel batch (bounds memory for large files).
 const BATCH: u64 = 8192;
 
@@ -31,7 +34,7 @@ fn config(args: &GenerateArgs) -> Result<ToyConfig, Failure> {
         ProcessArg::X53 => Partner::ChargeFiveThirds,
         ProcessArg::Tstar => Partner::ExcitedTop,
     };
-    let mut quark = HeavyQuark::new(partner, args.mass.unwrap_or(1200.0));
+    let mut quark = HeavyQuark::new(partner, args.mass.unwrap_or(DEFAULT_MASS));
     if let Some(name) = &args.decay {
         let mode = DecayMode::ALL
             .into_iter()
@@ -55,6 +58,10 @@ pub fn run(args: &GenerateArgs) -> Result<(), Failure> {
     if args.first_id.checked_add(args.events).is_none() {
         return Err(Failure::Usage("--first-id + --events overflows".into()));
     }
+    let what = match &args.config {
+        Some(path) => format!("configuration {}", path.display()),
+        None => describe(args),
+    };
     let generator = Generator::new(cfg, args.seed).map_err(|e| Failure::Usage(e.to_string()))?;
     let pool = super::reco::thread_pool(args.threads)?;
     let mut writer =
@@ -76,5 +83,38 @@ pub fn run(args: &GenerateArgs) -> Result<(), Failure> {
         }
         start = end;
     }
-    writer.finish().map_err(|e| Failure::Output(e.to_string()))
+    writer
+        .finish()
+        .map_err(|e| Failure::Output(e.to_string()))?;
+    if !args.quiet {
+        let to = if args.output.as_os_str() == "-" {
+            "stdout".to_string()
+        } else {
+            args.output.display().to_string()
+        };
+        eprintln!(
+            "quarry generate: {} events ({what}, seed {}, ids {}-{}) written to {to}",
+            args.events,
+            args.seed,
+            args.first_id,
+            (args.first_id + args.events).saturating_sub(1)
+        );
+    }
+    Ok(())
+}
+
+/// The process in words, for the summary line.
+fn describe(args: &GenerateArgs) -> String {
+    let process = match args.process {
+        ProcessArg::Ttbar => return "top pair".to_string(),
+        ProcessArg::VlqT => "vlq-t",
+        ProcessArg::VlqB => "vlq-b",
+        ProcessArg::X53 => "x53",
+        ProcessArg::Tstar => "tstar",
+    };
+    let mut s = format!("{process}, mass {} GeV", args.mass.unwrap_or(DEFAULT_MASS));
+    if let Some(mode) = &args.decay {
+        s.push_str(&format!(", decay {mode}"));
+    }
+    s
 }

@@ -110,6 +110,8 @@ pub fn run(args: &MergeArgs) -> Result<(), Failure> {
             )));
         }
         super::reco::check_output(out)?;
+        // Also through links and other spellings of a shard's path.
+        super::protect::refuse_output_among_inputs(out, args.shards.iter().map(|p| p.as_path()))?;
     }
     let set = ShardSet::check(&args.shards).map_err(failure)?;
     let n = set.shards().len();
@@ -125,27 +127,39 @@ pub fn run(args: &MergeArgs) -> Result<(), Failure> {
         }
         return Ok(());
     };
-    let stop = super::reco::stop_on_signal();
+    let interrupt = super::interrupt::Interrupt::install();
+    let stop = interrupt.flag();
     let mut sink = StopOnSignal {
         inner: quarry::csv::AtomicOutput::create(out)
             .map_err(|e| Failure::Output(e.to_string()))?,
         stop: Arc::clone(&stop),
     };
+    interrupt.watch_output(
+        sink.inner.temp_path().map(|p| p.to_path_buf()),
+        out.display().to_string(),
+    );
     let counts = match set.merge_into(&mut sink) {
         Ok(counts) => counts,
         Err(_) if stop.load(Ordering::Relaxed) => {
             drop(sink);
+            interrupt.finished();
             return Err(Failure::Interrupted(format!(
                 "interrupted by a signal (SIGINT or SIGTERM); {} not written",
                 out.display()
             )));
         }
-        Err(e) => return Err(failure(e)),
+        Err(e) => {
+            drop(sink);
+            interrupt.finished();
+            return Err(failure(e));
+        }
     };
     let sink = sink.inner;
     manifest::remove_stale(out)
         .map_err(|e| Failure::Output(format!("{}: {e}", manifest::manifest_path(out).display())))?;
-    sink.commit().map_err(|e| Failure::Output(e.to_string()))?;
+    interrupt
+        .commit(|| sink.commit())
+        .map_err(|e| Failure::Output(e.to_string()))?;
     let stamp =
         FileStamp::of(out).map_err(|e| Failure::Output(format!("{}: {e}", out.display())))?;
     let m = set.merged_manifest(stamp, started, SystemTime::now());

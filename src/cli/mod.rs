@@ -4,8 +4,10 @@
 pub mod args;
 pub mod eval;
 pub mod generate;
+pub mod interrupt;
 pub mod merge;
 pub mod presets;
+pub mod protect;
 pub mod reco;
 pub mod reco_manifest;
 pub mod summary;
@@ -24,6 +26,10 @@ pub enum Failure {
     /// `quarry merge` refused the shards (missing, duplicated,
     /// inconsistent); the message lists every problem, one per line.
     Refused(String),
+    /// `quarry reco` finished, but not one event could be read: the inputs held
+    /// no event, or every event was rejected (`bad_input`). The output is
+    /// written (every event accounted for) but is of no use.
+    NoEvents(String),
 }
 
 impl Failure {
@@ -37,6 +43,8 @@ impl Failure {
     pub const INTERRUPTED: u8 = 4;
     /// Exit code of a merge refused because of its shards.
     pub const REFUSED: u8 = 5;
+    /// Exit code of a run that read no usable event.
+    pub const NO_EVENTS: u8 = 6;
 
     pub fn code(&self) -> u8 {
         match self {
@@ -57,6 +65,21 @@ impl Failure {
             | Failure::Output(m)
             | Failure::Interrupted(m) => m.replace('\n', " "),
             Failure::Refused(m) => m.clone(),
+            Failure::NoEvents(_) => Self::NO_EVENTS,
+        }
+    }
+
+    /// The message. Configuration errors keep their line breaks (a TOML
+    /// error points at the line and column with a caret under the text),
+    /// indented under the first line; every other message is one line, as
+    /// it may quote input text.
+    pub fn message(&self) -> String {
+        match self {
+            Failure::Usage(m) => m.trim_end().replace('\n', "\n  "),
+            Failure::Input(m)
+            | Failure::Output(m)
+            | Failure::Interrupted(m)
+            | Failure::NoEvents(m) => m.replace('\n', " "),
         }
     }
 }

@@ -1,24 +1,25 @@
 //! `quarry reco`: stream events through the pipeline, write one row per
 //! event per hypothesis, in input order.
 
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::Arc;
+use std::path::PathBuf;
 
-use quarry::assign::{BtagPolicy, SearchConfig};
+use quarry::assign::{BtagPolicy, SearchConfig, SearchConfigError};
 use quarry::csv::{ErrorPolicy, ReadOptions};
 use quarry::event::Selection;
 use quarry::output::{CsvSink, RowSink};
 use quarry::stream::{ordered_chunked_map, outcome_of, Outcome, RawEvents};
-use quarry::Pipeline;
+use quarry::{Pipeline, PipelineError};
 
 use super::args::{BtagMode, OnBad, RecoArgs};
+use super::interrupt::Interrupt;
+use super::protect::{in_range, refuse_output_among_inputs, MAX_CHUNK, MAX_THREADS};
 use super::summary::{progress_bar, Summary};
 use super::Failure;
 
 /// A rayon pool with `threads` workers (all cores when `None`).
 pub fn thread_pool(threads: Option<usize>) -> Result<rayon::ThreadPool, Failure> {
-    if threads == Some(0) {
-        return Err(Failure::Usage("--threads must be at least 1".into()));
+    if let Some(n) = threads {
+        in_range("--threads", n, 1, MAX_THREADS)?;
     }
     let mut b = rayon::ThreadPoolBuilder::new();
     if let Some(n) = threads {
@@ -86,7 +87,18 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
     for h in &args.hypotheses {
         b = b.hypothesis_arg(h);
     }
-    b.build().map_err(|e| Failure::Usage(e.to_string()))
+    b.build().map_err(|e| match e {
+        // The library names its own field; the user typed an option.
+        PipelineError::Search {
+            name,
+            source: SearchConfigError::BadLeadingJets { value, needed },
+        } => Failure::Usage(format!(
+            "--max-jets {value} is out of range for hypothesis '{name}': it must be between \
+             {needed} (the jets it always uses) and {}",
+            quarry::assign::MAX_JETS
+        )),
+        e => Failure::Usage(e.to_string()),
+    })
 }
 
 /// Refuses an output that exists but is not a regular file (a device such
@@ -105,23 +117,6 @@ pub fn check_output(path: &std::path::Path) -> Result<(), Failure> {
     }
 }
 
-/// Turns SIGINT and SIGTERM (what batch systems send before killing a job)
-/// into a flag the writing loop checks after every event, so an interrupted
-/// run drops its writer and removes its temporary file instead of leaving it
-/// behind. A second signal ends the process at once, for a run blocked on
-/// its input. Without a handler (it could not be installed) the default
-/// action still ends the run, leaving only the hidden temporary file.
-pub fn stop_on_signal() -> Arc<AtomicBool> {
-    let flag = Arc::new(AtomicBool::new(false));
-    let seen = Arc::clone(&flag);
-    let _ = ctrlc::set_handler(move || {
-        if seen.swap(true, Ordering::Relaxed) {
-            std::process::exit(i32::from(Failure::INTERRUPTED));
-        }
-    });
-    flag
-}
-
 pub fn run(args: &RecoArgs) -> Result<(), Failure> {
     let stdin_uses = args.inputs.iter().filter(|p| p.as_os_str() == "-").count();
     if stdin_uses > 1 {
@@ -129,10 +124,9 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             "standard input ('-') can be read only once".into(),
         ));
     }
-    if args.chunk_size == 0 {
-        return Err(Failure::Usage("--chunk-size must be at least 1".into()));
-    }
+    in_range("--chunk-size", args.chunk_size, 1, MAX_CHUNK)?;
     check_output(&args.output)?;
+    refuse_output_among_inputs(&args.output, args.inputs.iter().map(PathBuf::as_path))?;
     let pipeline = pipeline(args)?;
     let pool = thread_pool(args.threads)?;
     let policy = match args.on_bad {
@@ -148,9 +142,13 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             }
         })
         .map(|r| r.map_err(|e| Failure::Input(e.to_string())));
-    let interrupted = stop_on_signal();
+    let interrupt = Interrupt::install();
     let mut read = 0u64;
     let mut writer = CsvSink::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
+    interrupt.watch_output(
+        writer.temp_path().map(PathBuf::from),
+        args.output.display().to_string(),
+    );
     let mut summary = Summary::start();
     let started = std::time::SystemTime::now();
     let bar = progress_bar(!args.no_progress && !args.quiet);
@@ -161,7 +159,7 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             || pipeline.worker(),
             |worker, item| outcome_of::<CsvSink>(worker, policy, item),
             |outcome| {
-                if interrupted.load(Ordering::Relaxed) {
+                if interrupt.is_set() {
                     return Err(Failure::Interrupted(
                         "interrupted by a signal (SIGINT or SIGTERM)".into(),
                     ));
@@ -208,8 +206,8 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                 quarry::manifest::remove_stale(&args.output)
                     .map_err(|e| Failure::Output(format!("{}: {e}", args.output.display())))?;
             }
-            writer
-                .finish()
+            interrupt
+                .commit(|| writer.finish())
                 .map_err(|e| Failure::Output(e.to_string()))?;
             if to_file {
                 let threads = pool.current_num_threads();
@@ -223,12 +221,13 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                     summary.render(&names, shard.clone(), pool.current_num_threads())
                 );
             }
-            Ok(())
+            no_events_check(&summary, &args.output, args.shard.is_some())
         }
         Err(failure) => {
             // The output is not committed: a file output leaves nothing
             // under its name (stdout already has the rows before the error).
             drop(writer);
+            interrupt.finished();
             if !args.quiet {
                 eprint!(
                     "{}",
@@ -240,5 +239,33 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
             }
             Err(failure)
         }
+    }
+}
+
+/// A run that read no usable event fails with its own exit code
+/// ([`Failure::NO_EVENTS`]) although its output is written: the inputs
+/// held no event, or every event this run processed was rejected. Under
+/// `--shard` only the first counts: a shard cannot tell whether the other
+/// shards' events are readable (it does not parse them), and one shard of
+/// a job array whose few events are all bad must not fail the array.
+fn no_events_check(
+    summary: &Summary,
+    output: &std::path::Path,
+    sharded: bool,
+) -> Result<(), Failure> {
+    let bad: u64 = summary.bad_by_reason.values().sum();
+    let written = if output.as_os_str() == "-" {
+        String::new()
+    } else {
+        format!(" ({} written with every event accounted for)", output.display())
+    };
+    if summary.read == 0 {
+        Err(Failure::NoEvents("the inputs hold no event".into()))
+    } else if !sharded && summary.processed > 0 && bad == summary.processed {
+        Err(Failure::NoEvents(format!(
+            "no event could be read: all {bad} events are bad_input{written}"
+        )))
+    } else {
+        Ok(())
     }
 }

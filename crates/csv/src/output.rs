@@ -141,7 +141,9 @@ impl AtomicOutput {
     }
 
     /// The hidden temporary file being written, if the output is a file.
-    pub(crate) fn temp_path(&self) -> Option<&Path> {
+    /// A program that must end at once (no destructor runs on
+    /// `std::process::exit`) can remove it.
+    pub fn temp_path(&self) -> Option<&Path> {
         self.target.as_ref().map(|(_, guard)| guard.tmp.as_path())
     }
 

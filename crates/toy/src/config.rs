@@ -38,7 +38,36 @@ pub enum Partner {
     ExcitedTop,
 }
 
+impl std::fmt::Display for Partner {
+    /// The physics name, for messages.
+    ///
+    /// ```
+    /// assert_eq!(
+    ///     quarry_toy::Partner::UpType.to_string(),
+    ///     "up-type vector-like quark T"
+    /// );
+    /// ```
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Partner::UpType => "up-type vector-like quark T",
+            Partner::DownType => "down-type vector-like quark B",
+            Partner::ChargeFiveThirds => "charge-5/3 quark X",
+            Partner::ExcitedTop => "excited top quark t*",
+        })
+    }
+}
+
 impl Partner {
+    /// The names of the decay modes this partner allows, comma-separated.
+    fn allowed_names(self) -> String {
+        DecayMode::ALL
+            .into_iter()
+            .filter(|m| self.allows(*m))
+            .map(|m| m.name())
+            .collect::<Vec<_>>()
+            .join(", ")
+    }
+
     /// The decay modes this partner may have.
     ///
     /// ```
@@ -356,9 +385,10 @@ impl HeavyQuark {
             }
             if f > 0.0 && !self.partner.allows(mode) {
                 return invalid(format!(
-                    "mode {} is not allowed for a {:?} partner",
+                    "decay mode {} is not allowed for the {} (it decays to {})",
                     mode.name(),
-                    self.partner
+                    self.partner,
+                    self.partner.allowed_names()
                 ));
             }
             if f > 0.0 && self.mass <= mode.threshold() {
