@@ -107,6 +107,19 @@ fn generate_reco_eval_writes_summary_table_and_plots() {
     let table = String::from_utf8(out.stdout).unwrap();
     assert!(table.contains("| bwbw-ljets | 800 | 600 |"), "{table}");
     assert!(table.contains("| bwbw-ljets | 1200 | 600 |"), "{table}");
+    // The mass column is named in every row and its choice explained, with
+    // every candidate's closure side by side.
+    assert!(table.contains("| mass column |"), "{table}");
+    assert!(table.contains("Mass column per hypothesis"), "{table}");
+    for column in ["fit_mass", "mass_avg", "mass_a", "mass_b"] {
+        assert!(
+            table.contains(&format!("| bwbw-ljets | {column} |")),
+            "{column}: {table}"
+        );
+    }
+    assert_eq!(table.matches("**yes**: smallest closure score").count(), 1);
+    let stderr = String::from_utf8(out.stderr).unwrap();
+    assert!(stderr.contains("bwbw-ljets: mass column "), "{stderr}");
 
     let summary = std::fs::read_to_string(d.join("summary.csv")).unwrap();
     let mut lines = summary.lines();
@@ -116,6 +129,11 @@ fn generate_reco_eval_writes_summary_table_and_plots() {
     );
     let samples: Vec<&str> = lines.map(|l| l.split(',').next().unwrap()).collect();
     assert_eq!(samples, ["T800", "T1200", "ttbar"]);
+    let mass_plot = std::fs::read_to_string(d.join("plots/mass_bwbw-ljets.svg")).unwrap();
+    assert!(
+        mass_plot.contains("Reconstructed mass (fit_mass")
+            || mass_plot.contains("Reconstructed mass (mass_")
+    );
     for plot in [
         "mass_bwbw-ljets.svg",
         "chi2_bwbw-ljets.svg",

@@ -99,10 +99,16 @@ pub struct EvalArgs {
     )]
     pub samples: Vec<quarry::eval::SampleSpec>,
 
-    /// Mass column: `auto` (fit_mass when the fit gave one, else mass_avg)
-    /// or a column name such as mass_a.
+    /// Mass column: `auto` chooses per hypothesis the candidate (fit_mass,
+    /// mass_avg, mass_a, mass_b) that closes best on the signal samples
+    /// (smallest √(peak shift² + (σ/m)²)); the table shows every
+    /// candidate's closure. Or a column name such as mass_a.
     #[arg(long, default_value = "auto", value_name = "auto|COLUMN")]
     pub mass_column: quarry::eval::MassColumn,
+
+    /// Logarithmic y axis on the mass plots.
+    #[arg(long)]
+    pub log_y: bool,
 
     /// Summary CSV (`-` = stdout).
     #[arg(short, long, default_value = "-", value_name = "FILE")]

@@ -6,8 +6,9 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use quarry::eval::{
-    evaluate, markdown_table, plot_chi2, plot_fit_prob, plot_mass, plot_right_fraction,
-    read_sample, write_summary_csv, EvalError, EvalRecord,
+    choose_mass_columns, evaluate, markdown_table, mass_choice_table, plot_chi2, plot_fit_prob,
+    plot_mass_with, plot_right_fraction, read_sample, write_summary_csv, EvalError, EvalRecord,
+    MassPlot,
 };
 
 use super::args::EvalArgs;
@@ -26,13 +27,21 @@ pub fn run(args: &EvalArgs) -> Result<(), Failure> {
             read_sample(spec, &args.mass_column).map_err(|e| Failure::Input(e.to_string()))?,
         );
     }
-    let summary = evaluate(&records);
+    let fixed = fixed_mass_hypotheses(&records);
+    let choices = choose_mass_columns(&mut records, &args.mass_column, &fixed);
+    let mut summary = evaluate(&records);
+    summary.mark_fixed_mass(&fixed);
 
     let mut csv = Vec::new();
     write_summary_csv(&summary, &mut csv).map_err(|e| Failure::Output(e.to_string()))?;
     write_out(&args.output, &csv)?;
     if let Some(path) = &args.table {
-        write_out(path, markdown_table(&summary).as_bytes())?;
+        let text = format!(
+            "{}\nMass column per hypothesis (closure of every candidate on the signal samples):\n\n{}",
+            markdown_table(&summary),
+            mass_choice_table(&choices)
+        );
+        write_out(path, text.as_bytes())?;
     }
 
     let mut written: Vec<PathBuf> = Vec::new();
@@ -55,7 +64,12 @@ pub fn run(args: &EvalArgs) -> Result<(), Failure> {
             let mass = dir.join(format!("mass_{stem}.svg"));
             let chi2 = dir.join(format!("chi2_{stem}.svg"));
             let prob = dir.join(format!("fit_prob_{stem}.svg"));
-            keep(plot_mass(&records, h, &mass), mass, &mut written)?;
+            let options = MassPlot { log_y: args.log_y };
+            keep(
+                plot_mass_with(&records, h, &mass, options),
+                mass,
+                &mut written,
+            )?;
             keep(plot_chi2(&signal, h, &chi2), chi2, &mut written)?;
             keep(plot_fit_prob(&signal, h, &prob), prob, &mut written)?;
         }
@@ -69,11 +83,44 @@ pub fn run(args: &EvalArgs) -> Result<(), Failure> {
             summary.groups.len(),
             written.len()
         );
+        for c in &choices {
+            eprintln!(
+                "  {}: mass column {} ({})",
+                c.hypothesis,
+                c.column.as_deref().unwrap_or("none"),
+                c.reason
+            );
+        }
         for p in &written {
             eprintln!("  {}", p.display());
         }
     }
     Ok(())
+}
+
+/// The hypotheses among `records` that are presets without an equal-mass
+/// constraint: their `mass_a`/`mass_b` are composites constrained to known
+/// masses (the top-pair preset's two tops), not a free heavy-quark mass.
+/// A hypothesis read from a user's file is not known here and is taken to
+/// measure a free mass.
+fn fixed_mass_hypotheses(records: &[EvalRecord]) -> Vec<String> {
+    use quarry::assign::{presets, ConstraintKind};
+    let mut fixed: Vec<String> = Vec::new();
+    for r in records {
+        if fixed.contains(&r.hypothesis) {
+            continue;
+        }
+        if let Some(h) = presets::get(&r.hypothesis) {
+            let free = h
+                .constraints()
+                .iter()
+                .any(|c| matches!(c.kind, ConstraintKind::EqualMass { .. }));
+            if !free {
+                fixed.push(r.hypothesis.clone());
+            }
+        }
+    }
+    fixed
 }
 
 /// A plot with nothing to draw is skipped (e.g. no fit, no signal sample);

@@ -54,14 +54,20 @@
 //! ```
 #![deny(missing_docs)]
 
+mod choice;
 mod plot;
 mod read;
 mod record;
 pub mod stats;
 mod summary;
 
-pub use plot::{plot_chi2, plot_fit_prob, plot_mass, plot_right_fraction, PLOT_SIZE};
-pub use read::{read_records, read_sample, MassColumn};
+pub use choice::{
+    choose_mass_columns, mass_choice_table, ColumnClosure, MassChoice, SampleClosure,
+};
+pub use plot::{
+    plot_chi2, plot_fit_prob, plot_mass, plot_mass_with, plot_right_fraction, MassPlot, PLOT_SIZE,
+};
+pub use read::{read_records, read_sample, MassColumn, MASS_CANDIDATES};
 pub use record::{EvalError, EvalRecord, SampleSpec, OK_STATUS};
 pub use stats::Fraction;
 pub use summary::{

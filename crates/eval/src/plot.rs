@@ -148,8 +148,8 @@ fn format_width(w: f64) -> String {
 
 type PlotResult = Result<(), Box<dyn std::error::Error>>;
 
-type Chart<'a, 'b, X = RangedCoordf64> =
-    ChartContext<'a, SVGBackend<'b>, Cartesian2d<X, RangedCoordf64>>;
+type Chart<'a, 'b, X = RangedCoordf64, Y = RangedCoordf64> =
+    ChartContext<'a, SVGBackend<'b>, Cartesian2d<X, Y>>;
 
 /// Tick label: integers without decimals, others with at most 3.
 fn tick(v: &f64) -> String {
@@ -159,18 +159,19 @@ fn tick(v: &f64) -> String {
     format_width(*v)
 }
 
-/// Paper, caption and a styled mesh; returns the chart. `x` is a linear
-/// (`RangedCoordf64`) or logarithmic (`LogCoord<f64>`) axis.
-fn styled_chart<'a, 'b, X>(
+/// Paper, caption and a styled mesh; returns the chart. `x` and `y` are
+/// linear (`RangedCoordf64`) or logarithmic (`LogCoord<f64>`) axes.
+fn styled_chart<'a, 'b, X, Y>(
     root: &'a DrawingArea<SVGBackend<'b>, Shift>,
     caption: &str,
     x: X,
-    y: std::ops::Range<f64>,
+    y: Y,
     x_desc: &str,
     y_desc: &str,
-) -> Result<Chart<'a, 'b, X>, Box<dyn std::error::Error>>
+) -> Result<Chart<'a, 'b, X, Y>, Box<dyn std::error::Error>>
 where
     X: Ranged<ValueType = f64> + ValueFormatter<f64>,
+    Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
 {
     root.fill(&PAPER)?;
     let mut chart = ChartBuilder::on(root)
@@ -200,8 +201,8 @@ where
     Ok(chart)
 }
 
-fn legend<'a, 'b: 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut Chart<'a, 'b, X>,
+fn legend<'a, 'b: 'a, X: Ranged<ValueType = f64>, Y: Ranged<ValueType = f64>>(
+    chart: &mut Chart<'a, 'b, X, Y>,
     position: SeriesLabelPosition,
 ) -> PlotResult {
     chart
@@ -216,19 +217,27 @@ fn legend<'a, 'b: 'a, X: Ranged<ValueType = f64>>(
 }
 
 /// Draws a stepped unit-area histogram as a line, optionally filled.
-fn draw_hist<'a, 'b: 'a, X: Ranged<ValueType = f64>>(
-    chart: &mut Chart<'a, 'b, X>,
+/// `floor` is the bottom of the y axis (0, or the lowest decade drawn on a
+/// logarithmic axis): empty bins are drawn there.
+#[allow(clippy::too_many_arguments)]
+fn draw_hist<'a, 'b: 'a, X: Ranged<ValueType = f64>, Y: Ranged<ValueType = f64>>(
+    chart: &mut Chart<'a, 'b, X, Y>,
     binning: &Binning,
     h: &[f64],
+    floor: f64,
     color: RGBColor,
     fill: Option<RGBColor>,
     label: String,
 ) -> PlotResult {
-    let pts = binning.steps(h);
+    let pts: Vec<(f64, f64)> = binning
+        .steps(h)
+        .into_iter()
+        .map(|(x, y)| (x, y.max(floor)))
+        .collect();
     if let Some(fill) = fill {
         chart
             .draw_series(
-                AreaSeries::new(pts, 0.0, fill.mix(0.45)).border_style(color.stroke_width(1)),
+                AreaSeries::new(pts, floor, fill.mix(0.45)).border_style(color.stroke_width(1)),
             )?
             .label(label)
             .legend(move |(x, y)| {
@@ -255,20 +264,47 @@ struct MassSample<'a> {
     masses: Vec<f64>,
 }
 
-/// Reconstructed mass of `ok` rows, one normalised histogram per sample:
-/// signal samples (those with a generated mass) as coloured lines with a
-/// dashed marker at the generated mass, background samples as grey filled
-/// areas. Rows of other hypotheses are skipped.
-///
-/// The axis spans the 0.5–99.5 % quantiles of all masses; masses beyond it
-/// are not drawn (the histograms stay normalised to all masses).
+/// Options of [`plot_mass_with`].
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct MassPlot {
+    /// Logarithmic y axis: a small background sample normalised to unit
+    /// area no longer squashes the signal curves, and tails stay visible.
+    pub log_y: bool,
+}
+
+/// [`plot_mass`] with the default options (linear y axis).
 ///
 /// ```no_run
 /// # let records: Vec<quarry_eval::EvalRecord> = vec![];
 /// quarry_eval::plot_mass(&records, "bwbw-ljets", "mass.svg".as_ref()).unwrap();
 /// ```
 pub fn plot_mass(records: &[EvalRecord], hypothesis: &str, path: &Path) -> Result<(), EvalError> {
+    plot_mass_with(records, hypothesis, path, MassPlot::default())
+}
+
+/// Reconstructed mass of `ok` rows, one normalised histogram per sample:
+/// signal samples (those with a generated mass) as coloured lines with a
+/// dashed marker at the generated mass, background samples as grey filled
+/// areas. Every non-empty bin carries its statistical uncertainty, √k/N
+/// for k of the sample's N masses (Poisson, common practice). The title
+/// and the axis name the mass column. Rows of other hypotheses are skipped.
+///
+/// The axis spans the 0.5–99.5 % quantiles of all masses; masses beyond it
+/// are not drawn (the histograms stay normalised to all masses).
+///
+/// ```no_run
+/// # let records: Vec<quarry_eval::EvalRecord> = vec![];
+/// use quarry_eval::{plot_mass_with, MassPlot};
+/// plot_mass_with(&records, "bwbw-ljets", "mass.svg".as_ref(), MassPlot { log_y: true }).unwrap();
+/// ```
+pub fn plot_mass_with(
+    records: &[EvalRecord],
+    hypothesis: &str,
+    path: &Path,
+    options: MassPlot,
+) -> Result<(), EvalError> {
     let mut samples: Vec<MassSample> = Vec::new();
+    let mut columns: Vec<&str> = Vec::new();
     for r in records
         .iter()
         .filter(|r| r.hypothesis == hypothesis && r.is_ok())
@@ -276,6 +312,9 @@ pub fn plot_mass(records: &[EvalRecord], hypothesis: &str, path: &Path) -> Resul
         let Some(m) = r.mass.filter(|m| m.is_finite()) else {
             continue;
         };
+        if !r.mass_column.is_empty() && !columns.contains(&r.mass_column.as_str()) {
+            columns.push(&r.mass_column);
+        }
         match samples.iter_mut().find(|s| s.name == r.sample) {
             Some(s) => s.masses.push(m),
             None => samples.push(MassSample {
@@ -313,51 +352,115 @@ pub fn plot_mass(records: &[EvalRecord], hypothesis: &str, path: &Path) -> Resul
         .iter()
         .map(|s| binning.fractions(&s.masses, false))
         .collect();
-    let ymax = hists.iter().flatten().fold(0.0f64, |a, &b| a.max(b)) * 1.18;
-    let caption = format!("Reconstructed mass — {hypothesis}");
-    let y_desc = format!("fraction of events / {} GeV", format_width(binning.width));
-    let draw = || -> PlotResult {
-        let root = SVGBackend::new(path, PLOT_SIZE).into_drawing_area();
-        let mut chart = styled_chart(
-            &root,
-            &caption,
-            RangedCoordf64::from(binning.lo..binning.hi()),
-            0.0..ymax.max(1e-3),
-            "reconstructed mass [GeV]",
-            &y_desc,
-        )?;
-        let mut colour = 0;
-        for (s, h) in samples.iter().zip(&hists) {
-            let label = match s.generated_mass {
-                Some(m) => format!("{} (m = {} GeV, {} ev.)", s.name, m, s.masses.len()),
-                None => format!("{} (background, {} ev.)", s.name, s.masses.len()),
-            };
-            if let Some(m) = s.generated_mass {
-                let c = PALETTE[colour % PALETTE.len()];
-                colour += 1;
-                chart.draw_series(DashedLineSeries::new(
-                    [(m, 0.0), (m, ymax)],
-                    6,
-                    5,
-                    c.mix(0.55).stroke_width(1),
-                ))?;
-                draw_hist(&mut chart, &binning, h, c, None, label)?;
-            } else {
-                draw_hist(
-                    &mut chart,
-                    &binning,
-                    h,
-                    BACKGROUND_LINE,
-                    Some(BACKGROUND_FILL),
-                    label,
-                )?;
-            }
-        }
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
-        root.present()?;
-        Ok(())
+    let ymax = hists.iter().flatten().fold(0.0f64, |a, &b| a.max(b));
+    let column = if columns.is_empty() {
+        "mass".to_string()
+    } else {
+        columns.join(", ")
     };
-    draw().map_err(|e| plot_error(path)(&e))
+    let d = MassDrawing {
+        caption: format!("Reconstructed mass ({column}) — {hypothesis}"),
+        x_desc: format!("reconstructed mass, column {column} [GeV]"),
+        y_desc: format!(
+            "fraction of events / {} GeV{}",
+            format_width(binning.width),
+            if options.log_y { " (log scale)" } else { "" }
+        ),
+        binning,
+        samples: &samples,
+        hists: &hists,
+    };
+    let root = SVGBackend::new(path, PLOT_SIZE).into_drawing_area();
+    let x = RangedCoordf64::from(binning.lo..binning.hi());
+    let result = if options.log_y {
+        // From the smallest possible non-empty bin (one mass of the largest
+        // sample) to above the highest bin.
+        let n_max = samples.iter().map(|s| s.masses.len()).max().unwrap_or(1) as f64;
+        let floor = 10f64.powf((0.5 / n_max).log10().floor());
+        let top = 10f64.powf((ymax.max(floor) * 2.0).log10().ceil());
+        let y: LogCoord<f64> = (floor..top).log_scale().into();
+        draw_mass(&root, x, y, floor, top, &d)
+    } else {
+        let top = (ymax * 1.18).max(1e-3);
+        draw_mass(&root, x, RangedCoordf64::from(0.0..top), 0.0, top, &d)
+    };
+    result
+        .and_then(|()| root.present().map_err(Into::into))
+        .map_err(|e| plot_error(path)(&e))
+}
+
+/// Everything the mass plot draws.
+struct MassDrawing<'s> {
+    caption: String,
+    x_desc: String,
+    y_desc: String,
+    binning: Binning,
+    samples: &'s [MassSample<'s>],
+    hists: &'s [Vec<f64>],
+}
+
+fn draw_mass<Y>(
+    root: &DrawingArea<SVGBackend<'_>, Shift>,
+    x: RangedCoordf64,
+    y: Y,
+    floor: f64,
+    top: f64,
+    d: &MassDrawing<'_>,
+) -> PlotResult
+where
+    Y: Ranged<ValueType = f64> + ValueFormatter<f64>,
+{
+    let mut chart = styled_chart(root, &d.caption, x, y, &d.x_desc, &d.y_desc)?;
+    let mut colour = 0;
+    for (s, h) in d.samples.iter().zip(d.hists) {
+        let label = match s.generated_mass {
+            Some(m) => format!("{} (m = {} GeV, {} ev.)", s.name, m, s.masses.len()),
+            None => format!("{} (background, {} ev.)", s.name, s.masses.len()),
+        };
+        let c = if let Some(m) = s.generated_mass {
+            let c = PALETTE[colour % PALETTE.len()];
+            colour += 1;
+            chart.draw_series(DashedLineSeries::new(
+                [(m, floor), (m, top)],
+                6,
+                5,
+                c.mix(0.55).stroke_width(1),
+            ))?;
+            draw_hist(&mut chart, &d.binning, h, floor, c, None, label)?;
+            c
+        } else {
+            draw_hist(
+                &mut chart,
+                &d.binning,
+                h,
+                floor,
+                BACKGROUND_LINE,
+                Some(BACKGROUND_FILL),
+                label,
+            )?;
+            BACKGROUND_LINE
+        };
+        // √k/N on the fraction k/N: √(f/N).
+        let n = s.masses.len() as f64;
+        chart.draw_series(
+            h.iter()
+                .enumerate()
+                .filter(|(_, &f)| f > 0.0)
+                .map(|(i, &f)| {
+                    let centre = d.binning.edge(i) + 0.5 * d.binning.width;
+                    let e = (f / n).sqrt();
+                    ErrorBar::new_vertical(
+                        centre,
+                        (f - e).max(floor),
+                        f,
+                        f + e,
+                        c.mix(0.8).stroke_width(1),
+                        3,
+                    )
+                }),
+        )?;
+    }
+    legend(&mut chart, SeriesLabelPosition::UpperRight)
 }
 
 /// Right and wrong values of `value` among `ok` rows of `hypothesis` with a
@@ -455,14 +558,23 @@ fn draw_right_wrong<X>(
 where
     X: Ranged<ValueType = f64> + ValueFormatter<f64>,
 {
-    let mut chart = styled_chart(root, d.caption, x, 0.0..d.ymax, d.x_desc, d.y_desc)?;
+    let y = RangedCoordf64::from(0.0..d.ymax);
+    let mut chart = styled_chart(root, d.caption, x, y, d.x_desc, d.y_desc)?;
     if d.n_wrong > 0 {
         let label = format!("wrong assignment ({} ev.)", d.n_wrong);
-        draw_hist(&mut chart, &d.binning, d.h_wrong, WRONG, Some(WRONG), label)?;
+        draw_hist(
+            &mut chart,
+            &d.binning,
+            d.h_wrong,
+            0.0,
+            WRONG,
+            Some(WRONG),
+            label,
+        )?;
     }
     if d.n_right > 0 {
         let label = format!("right assignment ({} ev.)", d.n_right);
-        draw_hist(&mut chart, &d.binning, d.h_right, RIGHT, None, label)?;
+        draw_hist(&mut chart, &d.binning, d.h_right, 0.0, RIGHT, None, label)?;
     }
     legend(&mut chart, d.position.clone())
 }
@@ -536,7 +648,9 @@ pub fn plot_fit_prob(
 }
 
 /// Right-assignment fraction against generated mass, one line per
-/// hypothesis, with 68 % Wilson-interval error bars; signal groups only.
+/// hypothesis, with 68 % Wilson-interval error bars; signal groups only,
+/// leaving out those that do not measure the signal's mass
+/// ([`crate::GroupSummary::measures_signal_mass`]).
 ///
 /// ```no_run
 /// # let summary = quarry_eval::Summary::default();
@@ -546,7 +660,7 @@ pub fn plot_right_fraction(summary: &Summary, path: &Path) -> Result<(), EvalErr
     // (hypothesis, [(mass, fraction, lo68, hi68)])
     type Points = Vec<(f64, f64, f64, f64)>;
     let mut series: Vec<(&str, Points)> = Vec::new();
-    for g in &summary.groups {
+    for g in summary.groups.iter().filter(|g| g.measures_signal_mass) {
         let (Some(m), Some(f)) = (g.generated_mass, g.right) else {
             continue;
         };
@@ -577,7 +691,7 @@ pub fn plot_right_fraction(summary: &Summary, path: &Path) -> Result<(), EvalErr
             &root,
             "Right-assignment fraction vs mass",
             RangedCoordf64::from((lo - pad).max(0.0)..hi + pad),
-            0.0..1.0,
+            RangedCoordf64::from(0.0..1.0),
             "generated mass [GeV]",
             "right-assignment fraction",
         )?;

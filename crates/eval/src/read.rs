@@ -9,11 +9,17 @@ use std::io::Read;
 
 use crate::record::{EvalError, EvalRecord, SampleSpec};
 
+/// The columns of the reconstruction output that can serve as the
+/// reconstructed heavy-quark mass: the fitted common mass of the
+/// equal-mass pair, the mean of the pair's two masses, and each of the two.
+pub const MASS_CANDIDATES: [&str; 4] = ["fit_mass", "mass_avg", "mass_a", "mass_b"];
+
 /// Which column holds the reconstructed mass.
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
 pub enum MassColumn {
-    /// `fit_mass` where the fit gave one, else `mass_avg` (the mean of the
-    /// two pair-produced parents' masses of the chosen assignment).
+    /// Chosen per hypothesis from measured closure on the signal samples
+    /// ([`crate::choose_mass_columns`]). As read, before that choice, a
+    /// record's mass is `fit_mass` where the fit gave one, else `mass_avg`.
     #[default]
     Auto,
     /// This column (e.g. `mass_a`); rows where it is empty have no mass.
@@ -126,6 +132,15 @@ pub fn read_records(
             .unzip(),
         MassColumn::Named(n) => (vec![required(n)?], vec![n.as_str()]),
     };
+    let mut candidate_cols: Vec<(usize, &str)> = MASS_CANDIDATES
+        .into_iter()
+        .filter_map(|n| find(n).map(|c| (c, n)))
+        .collect();
+    if let MassColumn::Named(n) = mass {
+        if !MASS_CANDIDATES.contains(&n.as_str()) {
+            candidate_cols.push((required(n)?, n.as_str()));
+        }
+    }
     let chi2_col = find("chi2");
     let prob_col = find("fit_prob");
     let truth_col = find("truth_match");
@@ -156,10 +171,18 @@ pub fn read_records(
             }
         };
         let mut mass_value = None;
+        let mut mass_column = String::new();
         for (&c, &name) in mass_cols.iter().zip(&mass_names) {
             if let Some(m) = number(Some(c), name)? {
                 mass_value = Some(m);
+                mass_column = name.to_string();
                 break;
+            }
+        }
+        let mut mass_candidates = Vec::new();
+        for &(c, name) in &candidate_cols {
+            if let Some(m) = number(Some(c), name)? {
+                mass_candidates.push((name.to_string(), m));
             }
         }
         let truth_match = match truth_col.map(field) {
@@ -189,6 +212,8 @@ pub fn read_records(
             fit_prob: number(prob_col, "fit_prob")?,
             truth_match,
             composite_matches,
+            mass_column,
+            mass_candidates,
         });
     }
     Ok(out)

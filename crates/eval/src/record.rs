@@ -33,6 +33,13 @@ pub struct EvalRecord {
     pub truth_match: Option<bool>,
     /// Per-composite truth match `(composite, matched)`, when known.
     pub composite_matches: Vec<(String, bool)>,
+    /// Name of the column `mass` was taken from (empty when unknown, e.g.
+    /// a record built in code).
+    pub mass_column: String,
+    /// Every candidate mass column ([`crate::MASS_CANDIDATES`]) that has a
+    /// value on this row, `(column, value)`: what
+    /// [`crate::choose_mass_columns`] compares.
+    pub mass_candidates: Vec<(String, f64)>,
 }
 
 impl EvalRecord {

@@ -20,6 +20,29 @@ pub struct Summary {
 }
 
 impl Summary {
+    /// Marks the signal groups of `hypotheses` as not measuring the
+    /// signal's mass ([`GroupSummary::measures_signal_mass`]): hypotheses
+    /// whose pair masses are constrained to a known particle's mass (see
+    /// [`crate::choose_mass_columns`]).
+    ///
+    /// ```
+    /// use quarry_eval::{evaluate, EvalRecord};
+    /// let r = EvalRecord { sample: "T1000".into(), generated_mass: Some(1000.0),
+    ///     hypothesis: "ttbar-ljets".into(), status: "ok".into(), mass: Some(172.0),
+    ///     ..EvalRecord::default() };
+    /// let mut s = evaluate(&[r]);
+    /// assert!(s.groups[0].measures_signal_mass);
+    /// s.mark_fixed_mass(&["ttbar-ljets".to_string()]);
+    /// assert!(!s.groups[0].measures_signal_mass);
+    /// ```
+    pub fn mark_fixed_mass(&mut self, hypotheses: &[String]) {
+        for g in &mut self.groups {
+            if g.generated_mass.is_some() && hypotheses.contains(&g.hypothesis) {
+                g.measures_signal_mass = false;
+            }
+        }
+    }
+
     /// The entry for `sample` and `hypothesis`, if any.
     pub fn get(&self, sample: &str, hypothesis: &str) -> Option<&GroupSummary> {
         self.groups
@@ -60,6 +83,17 @@ pub struct GroupSummary {
     pub fit_prob_right: Option<Quantiles>,
     /// Fit probability, `ok` rows not matching the truth.
     pub fit_prob_wrong: Option<Quantiles>,
+    /// The column the masses came from (the most common among the `ok`
+    /// rows with a mass; empty if none has one).
+    pub mass_column: String,
+    /// Whether this group says anything about the signal's mass: `false`
+    /// for a signal sample under a hypothesis that reconstructs no pair
+    /// mass although it reconstructed events, or whose pair masses are a
+    /// known particle's ([`Summary::mark_fixed_mass`], e.g. the top-pair
+    /// hypothesis on heavy-quark signal). Such groups stay in the summary CSV but are
+    /// left out of the Markdown table and the right-fraction plot.
+    /// Always `true` for background.
+    pub measures_signal_mass: bool,
 }
 
 /// Peak and width of a reconstructed-mass distribution.
@@ -212,6 +246,18 @@ fn summarise(rows: &[&EvalRecord]) -> GroupSummary {
         }
     }
     let masses: Vec<f64> = ok.iter().filter_map(|r| r.mass).collect();
+    let mut columns: BTreeMap<&str, usize> = BTreeMap::new();
+    for r in ok.iter().filter(|r| r.mass.is_some()) {
+        *columns.entry(r.mass_column.as_str()).or_insert(0) += 1;
+    }
+    let mass_column = columns
+        .iter()
+        .max_by_key(|(_, n)| **n)
+        .map_or(String::new(), |(c, _)| c.to_string());
+    let has_pair_mass = ok
+        .iter()
+        .any(|r| r.mass.is_some() || !r.mass_candidates.is_empty());
+    let measures_signal_mass = first.generated_mass.is_none() || ok.is_empty() || has_pair_mass;
     let pick = |right: bool, f: fn(&EvalRecord) -> Option<f64>| {
         Quantiles::of(
             ok.iter()
@@ -236,13 +282,15 @@ fn summarise(rows: &[&EvalRecord]) -> GroupSummary {
         chi2_wrong: pick(false, |r| r.chi2),
         fit_prob_right: pick(true, |r| r.fit_prob),
         fit_prob_wrong: pick(false, |r| r.fit_prob),
+        mass_column,
+        measures_signal_mass,
     }
 }
 
 /// Columns of the summary CSV, in order. Stable: new columns are only ever
 /// appended. Empty fields mean "not available" (no truth, no fit, too few
 /// masses, background sample).
-pub const SUMMARY_COLUMNS: [&str; 31] = [
+pub const SUMMARY_COLUMNS: [&str; 33] = [
     "sample",
     "generated_mass",
     "hypothesis",
@@ -274,6 +322,8 @@ pub const SUMMARY_COLUMNS: [&str; 31] = [
     "n_fit_wrong",
     "fit_prob_wrong_median",
     "fit_prob_wrong_q10",
+    "mass_column",
+    "measures_signal_mass",
 ];
 
 fn opt<T>(x: Option<T>, f: impl Fn(T) -> String) -> String {
@@ -330,6 +380,8 @@ pub fn summary_row(g: &GroupSummary) -> Vec<String> {
         g.fit_prob_wrong.map_or(0, |q| q.n).to_string(),
         opt(g.fit_prob_wrong, |q| f6(q.median)),
         opt(g.fit_prob_wrong, |q| f6(q.q10)),
+        g.mass_column.clone(),
+        u8::from(g.measures_signal_mass).to_string(),
     ]
 }
 
@@ -364,7 +416,9 @@ pub fn write_summary_csv(summary: &Summary, out: impl Write) -> Result<(), EvalE
 
 /// A Markdown table of right-assignment fraction and mass resolution per
 /// signal sample and hypothesis (the README's closure table), ordered by
-/// generated mass.
+/// generated mass, with the mass column of each row. Groups that do not
+/// measure the signal's mass ([`GroupSummary::measures_signal_mass`]) are
+/// left out and listed under the table.
 ///
 /// ```
 /// let s = quarry_eval::Summary::default();
@@ -374,7 +428,13 @@ pub fn markdown_table(summary: &Summary) -> String {
     let mut rows: Vec<&GroupSummary> = summary
         .groups
         .iter()
-        .filter(|g| g.generated_mass.is_some())
+        .filter(|g| g.generated_mass.is_some() && g.measures_signal_mass)
+        .collect();
+    let left_out: Vec<String> = summary
+        .groups
+        .iter()
+        .filter(|g| !g.measures_signal_mass)
+        .map(|g| format!("{} on {}", g.hypothesis, g.sample))
         .collect();
     rows.sort_by(|a, b| {
         (a.hypothesis.as_str(), a.generated_mass.unwrap_or(0.0))
@@ -382,8 +442,8 @@ pub fn markdown_table(summary: &Summary) -> String {
             .unwrap_or(std::cmp::Ordering::Equal)
     });
     let mut s = String::from(
-        "| hypothesis | generated mass [GeV] | events | reconstructed | right assignment | mass peak [GeV] | peak shift | core σ [GeV] | σ/m | half-width 68 % [GeV] | tail (>3σ) |\n\
-         |---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|\n",
+        "| hypothesis | generated mass [GeV] | events | reconstructed | right assignment | mass column | mass peak [GeV] | peak shift | core σ [GeV] | σ/m | half-width 68 % [GeV] | tail (>3σ) |\n\
+         |---|---:|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|\n",
     );
     for g in rows {
         let right = g.right.map_or("–".to_string(), |f| {
@@ -401,18 +461,29 @@ pub fn markdown_table(summary: &Summary) -> String {
             None => Default::default(),
         };
         s.push_str(&format!(
-            "| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |\n",
+            "| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |\n",
             g.hypothesis,
             opt(g.generated_mass, |x| format!("{x}")),
             g.n_rows,
             g.n_ok,
             right,
+            if g.mass_column.is_empty() {
+                "–"
+            } else {
+                &g.mass_column
+            },
             peak,
             shift,
             sigma,
             rel,
             hw,
             tail
+        ));
+    }
+    if !left_out.is_empty() {
+        s.push_str(&format!(
+            "\nLeft out (the hypothesis reconstructs no free pair mass, so it says nothing about the signal's mass): {}.\n",
+            left_out.join(", ")
         ));
     }
     s

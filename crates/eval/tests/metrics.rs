@@ -218,3 +218,72 @@ fn markdown_table_lists_signal_by_mass() {
     assert!(lines[3].contains("| 1400 |"));
     assert!(!t.contains("ttbar"));
 }
+
+/// The mass column is chosen per hypothesis from closure: here the fitted
+/// mass is pulled 16 % low (as for a tW pair with mostly wrong
+/// assignments), the mean of the pair is on the generated mass, so the
+/// mean is chosen; every column's closure is kept, side by side.
+#[test]
+fn the_mass_column_is_chosen_from_closure_and_alternatives_are_reported() {
+    use quarry_eval::{choose_mass_columns, mass_choice_table, read_records, MassColumn};
+    let mut csv = String::from("hypothesis,status,fit_mass,mass_avg,mass_a,mass_b\n");
+    for m in [600.0, 900.0] {
+        for (i, x) in gaussian(600, 0.0, 1.0, m as u64).into_iter().enumerate() {
+            let fit = 0.84 * m + 0.08 * m * x;
+            let avg = m + 0.05 * m * x;
+            // The two candidates alone: wider than their mean.
+            let side = if i % 2 == 0 { 20.0 } else { -20.0 };
+            let a = m + 0.09 * m * x + side;
+            let b = m - 0.09 * m * x - side;
+            csv.push_str(&format!("twtw,ok,{fit},{avg},{a},{b}\n"));
+        }
+    }
+    let half = csv.lines().count() / 2;
+    let lines: Vec<&str> = csv.lines().collect();
+    let t600 = format!("{}\n{}\n", lines[0], lines[1..=half].join("\n"));
+    let t900 = format!("{}\n{}\n", lines[0], lines[half + 1..].join("\n"));
+    let mut records =
+        read_records(t600.as_bytes(), "a", "T600", Some(600.0), &MassColumn::Auto).unwrap();
+    records.extend(
+        read_records(t900.as_bytes(), "b", "T900", Some(900.0), &MassColumn::Auto).unwrap(),
+    );
+    // As read, the fitted mass is the record's mass (the old rule).
+    assert_eq!(records[0].mass_column, "fit_mass");
+    assert_eq!(records[0].mass_candidates.len(), 4);
+    let choices = choose_mass_columns(&mut records, &MassColumn::Auto, &[]);
+    assert_eq!(choices.len(), 1);
+    let c = &choices[0];
+    assert_eq!(c.column.as_deref(), Some("mass_avg"), "{c:?}");
+    assert_eq!(c.columns.len(), 4);
+    for col in &c.columns {
+        assert_eq!(col.samples.len(), 2, "{}", col.column);
+    }
+    let fit = c.columns.iter().find(|x| x.column == "fit_mass").unwrap();
+    let shift = fit.samples[1].resolution.peak_shift.unwrap();
+    assert!((shift + 0.16).abs() < 0.01, "fit_mass shift {shift}");
+    assert!(records.iter().all(|r| r.mass_column == "mass_avg"));
+    let s = evaluate(&records);
+    assert_eq!(s.get("T900", "twtw").unwrap().mass_column, "mass_avg");
+    let peak = s.get("T900", "twtw").unwrap().mass.unwrap().peak;
+    assert!((peak - 900.0).abs() < 5.0, "{peak}");
+    let table = mass_choice_table(&choices);
+    assert!(
+        table.contains("| twtw | mass_avg | **yes**: smallest closure score"),
+        "{table}"
+    );
+    assert!(table.contains("| twtw | fit_mass |  |"), "{table}");
+    assert!(
+        table.contains("900: -15.") || table.contains("900: -16."),
+        "{table}"
+    );
+    // A named column is used as named; the others' closure is still there.
+    let mut again = records.clone();
+    let named = choose_mass_columns(&mut again, &MassColumn::Named("mass_a".into()), &[]);
+    assert_eq!(named[0].column.as_deref(), Some("mass_a"));
+    assert_eq!(named[0].columns.len(), 4);
+    // A hypothesis whose pair masses are a known particle's gets none.
+    let mut again = records.clone();
+    let fixed = choose_mass_columns(&mut again, &MassColumn::Auto, &["twtw".to_string()]);
+    assert_eq!(fixed[0].column, None);
+    assert!(fixed[0].reason.contains("known particle"));
+}

@@ -2,7 +2,8 @@
 //! empty inputs are typed errors.
 
 use quarry_eval::{
-    evaluate, plot_chi2, plot_fit_prob, plot_mass, plot_right_fraction, EvalError, EvalRecord,
+    evaluate, markdown_table, plot_chi2, plot_fit_prob, plot_mass, plot_mass_with,
+    plot_right_fraction, EvalError, EvalRecord, MassPlot,
 };
 
 fn sample(name: &str, mass: Option<f64>, centre: f64, n: usize) -> Vec<EvalRecord> {
@@ -21,6 +22,8 @@ fn sample(name: &str, mass: Option<f64>, centre: f64, n: usize) -> Vec<EvalRecor
                 fit_prob: Some(((i * 31) % 100) as f64 / 100.0),
                 truth_match: mass.map(|_| i % 3 != 0),
                 composite_matches: Vec::new(),
+                mass_column: "fit_mass".into(),
+                mass_candidates: Vec::new(),
             }
         })
         .collect()
@@ -52,8 +55,8 @@ fn mass_plot_has_every_sample_and_axis_titles() {
     plot_mass(&all_records(), "bwbw-ljets", &path).unwrap();
     let text = svg(&path);
     for label in [
-        "Reconstructed mass — bwbw-ljets",
-        "reconstructed mass [GeV]",
+        "Reconstructed mass (fit_mass) — bwbw-ljets",
+        "reconstructed mass, column fit_mass [GeV]",
         "ttbar (background, 360 ev.)",
         "T600 (m = 600 GeV, 360 ev.)",
         "T1400 (m = 1400 GeV, 360 ev.)",
@@ -133,4 +136,81 @@ fn unwritable_path_is_a_plot_error() {
     )
     .unwrap_err();
     assert!(matches!(err, EvalError::Plot { .. }), "{err}");
+}
+
+/// Every non-empty bin of every sample carries a √k/N error bar (Poisson,
+/// common practice), so a histogram of 360 masses has as many bars as
+/// non-empty bins; the log-scale option draws the same bars on a log axis.
+#[test]
+fn mass_plot_has_statistical_error_bars_and_a_log_option() {
+    let dir = tempfile::tempdir().unwrap();
+    // One sample only, so every bar belongs to it.
+    let records = sample("T1000", Some(1000.0), 1000.0, 400);
+    for log_y in [false, true] {
+        let path = dir.path().join(format!("mass-{log_y}.svg"));
+        plot_mass_with(&records, "bwbw-ljets", &path, MassPlot { log_y }).unwrap();
+        let text = svg(&path);
+        assert_eq!(text.contains("(log scale)"), log_y);
+        // An error bar is a vertical line plus two caps: count the vertical
+        // lines in the sample's colour (#0F6E7A at 0.8 opacity).
+        let bars = text
+            .lines()
+            .filter(|l| l.starts_with("<line") && l.to_uppercase().contains("#0F6E7A"))
+            .count();
+        assert!(bars >= 3 * 10, "log_y {log_y}: {bars} error-bar lines");
+    }
+}
+
+/// The top-pair hypothesis on a heavy-quark signal has no pair mass: it is
+/// left out of the Markdown table and the right-fraction plot, and named
+/// under the table.
+#[test]
+fn groups_that_do_not_measure_the_signal_mass_are_left_out() {
+    let mut records = all_records();
+    records.extend(
+        sample("T1000", Some(1000.0), 1000.0, 200)
+            .into_iter()
+            .map(|mut r| {
+                r.hypothesis = "ttbar-ljets".into();
+                r.mass = None;
+                r.mass_column = String::new();
+                r
+            }),
+    );
+    let summary = evaluate(&records);
+    let g = summary.get("T1000", "ttbar-ljets").unwrap();
+    assert!(!g.measures_signal_mass);
+    // The same when the top-pair rows carry their top masses, once the
+    // hypothesis is marked as one with fixed-mass pairs.
+    let mut with_tops = all_records();
+    with_tops.extend(
+        sample("T1000", Some(1000.0), 172.5, 200)
+            .into_iter()
+            .map(|mut r| {
+                r.hypothesis = "ttbar-ljets".into();
+                r
+            }),
+    );
+    let mut s2 = evaluate(&with_tops);
+    assert!(s2.get("T1000", "ttbar-ljets").unwrap().measures_signal_mass);
+    s2.mark_fixed_mass(&["ttbar-ljets".to_string()]);
+    assert!(!s2.get("T1000", "ttbar-ljets").unwrap().measures_signal_mass);
+    assert!(!markdown_table(&s2).contains("| ttbar-ljets |"));
+    assert!(
+        summary
+            .get("T1000", "bwbw-ljets")
+            .unwrap()
+            .measures_signal_mass
+    );
+    let table = markdown_table(&summary);
+    assert!(
+        !table.lines().any(|l| l.starts_with("| ttbar-ljets")),
+        "{table}"
+    );
+    assert!(table.contains("Left out") && table.contains("ttbar-ljets on T1000"));
+    assert!(table.contains("| mass column |") && table.contains("| fit_mass |"));
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("right.svg");
+    plot_right_fraction(&summary, &path).unwrap();
+    assert!(!svg(&path).contains("ttbar-ljets"));
 }
