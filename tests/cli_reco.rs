@@ -496,7 +496,7 @@ fn btag_mode_best_and_max_jets_options() {
             vec!["--btag-mode", "weighted", "--mistag-rate", "0.9"],
             "--mistag-rate",
         ),
-        (vec!["--max-jets", "2"], "max_jets"),
+        (vec!["--max-jets", "2"], "--max-jets"),
     ] {
         let mut all = vec!["reco", s(&input), "-H", "bwbw-ljets", "-o", "-", "-q"];
         all.extend_from_slice(&args);

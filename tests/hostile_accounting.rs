@@ -98,16 +98,35 @@ fn check_structure(ctx: &str, rows: &[(u64, String, String, String, String)]) ->
 /// Records the library reader yields for a file under a policy (including
 /// the bad event that ends a stop run), and whether the stream broke.
 fn reader_count(path: &Path, policy: ErrorPolicy) -> Option<(usize, bool)> {
+    reader_counts(path, policy).map(|(n, _, broke)| (n, broke))
+}
+
+/// As [`reader_count`], with the number of good (parsed) events too.
+fn reader_counts(path: &Path, policy: ErrorPolicy) -> Option<(usize, usize, bool)> {
     let reader = EventReader::open(path, ReadOptions::default().with_policy(policy)).ok()?;
     let mut n = 0;
+    let mut good = 0;
     let mut broke = false;
     for r in reader {
         match r {
-            Ok(_) => n += 1,
+            Ok(record) => {
+                n += 1;
+                good += usize::from(matches!(record, quarry::csv::Record::Good(_)));
+            }
             Err(_) => broke = true,
         }
     }
-    Some((n, broke))
+    Some((n, good, broke))
+}
+
+/// The exit code of a skip run that did not break: 5 when no event could
+/// be read (docs/cli.md, exit codes), else 0.
+fn skip_code(good: usize) -> i32 {
+    if good == 0 {
+        5
+    } else {
+        0
+    }
 }
 
 /// "N events read" from the run summary on stderr.
@@ -140,16 +159,17 @@ fn every_event_of_the_corpus_gets_one_row_per_hypothesis() {
         let stderr = String::from_utf8_lossy(&out.stderr);
         let rs = rows(&out.stdout);
         let n = check_structure(&ctx, &rs);
-        match reader_count(&path, ErrorPolicy::Skip) {
+        match reader_counts(&path, ErrorPolicy::Skip) {
             None => {
                 // Unusable header: no events, exit 2.
                 assert_eq!(out.status.code(), Some(2), "{ctx}");
                 assert_eq!(n, 0, "{ctx}");
             }
-            Some((records, broke)) => {
+            Some((records, good, broke)) => {
                 assert_eq!(n, records, "{ctx}: rows/hypotheses vs records read");
                 assert_eq!(events_read(&stderr), records as u64, "{ctx}: summary count");
-                assert_eq!(out.status.code(), Some(if broke { 2 } else { 0 }), "{ctx}");
+                let want = if broke { 2 } else { skip_code(good) };
+                assert_eq!(out.status.code(), Some(want), "{ctx}");
             }
         }
         // Stop: the rows before the first bad event, then exit 2.
@@ -172,7 +192,8 @@ fn every_event_of_the_corpus_gets_one_row_per_hypothesis() {
                 }
                 None => {
                     assert_eq!(n_stop, records, "{ctx}");
-                    assert_eq!(out.status.code(), Some(if broke { 2 } else { 0 }), "{ctx}");
+                    let want = if broke { 2 } else { skip_code(records) };
+                    assert_eq!(out.status.code(), Some(want), "{ctx}");
                 }
             }
         }
@@ -327,7 +348,8 @@ proptest! {
         }
 
         let out = reco(&path, "skip");
-        prop_assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let good = events.iter().filter(|(d, _, _)| d.category().is_none()).count();
+        prop_assert_eq!(out.status.code(), Some(skip_code(good)), "{}", String::from_utf8_lossy(&out.stderr));
         let rs = rows(&out.stdout);
         let n = check_structure("mix/skip", &rs);
         prop_assert_eq!(n, events.len(), "rows = events × hypotheses");
