@@ -130,10 +130,10 @@ fn a_run_that_reads_no_event_has_its_own_exit_code() {
     let good = write(dir.path(), "good.csv", GOOD);
     let out = dir.path().join("out.csv");
     let o = quarry(&["reco", s(&empty), "-o", s(&out), "--no-progress"]);
-    assert_eq!(code(&o), 5, "{}", stderr(&o));
+    assert_eq!(code(&o), 6, "{}", stderr(&o));
     assert!(stderr(&o).contains("no event"), "{}", stderr(&o));
     let o = quarry(&["reco", s(&all_bad), "-o", s(&out), "-q"]);
-    assert_eq!(code(&o), 5, "{}", stderr(&o));
+    assert_eq!(code(&o), 6, "{}", stderr(&o));
     assert!(stderr(&o).contains("all 2 events are bad_input"));
     // The output is still written, every event accounted for.
     let text = std::fs::read_to_string(&out).unwrap();
@@ -145,8 +145,23 @@ fn a_run_that_reads_no_event_has_its_own_exit_code() {
     // failure (a job array with more shards than events).
     let o = quarry(&["reco", s(&good), "--shard", "1/2", "-o", s(&out), "-q"]);
     assert_eq!(code(&o), 0, "{}", stderr(&o));
+    // Nor is a shard whose events are all bad (it cannot see the others').
+    let o = quarry(&[
+        "reco",
+        s(&all_bad),
+        s(&good),
+        "--shard",
+        "0/3",
+        "-o",
+        s(&out),
+        "-q",
+    ]);
+    assert_eq!(code(&o), 0, "{}", stderr(&o));
+    // But a sharded run over no event at all is.
+    let o = quarry(&["reco", s(&empty), "--shard", "0/3", "-o", s(&out), "-q"]);
+    assert_eq!(code(&o), 6, "{}", stderr(&o));
     let help = quarry(&["reco", "--help"]);
-    assert!(String::from_utf8_lossy(&help.stdout).contains("5  no event could be read"));
+    assert!(String::from_utf8_lossy(&help.stdout).contains("6  no event could be read"));
 }
 
 #[test]

@@ -119,11 +119,11 @@ fn reader_counts(path: &Path, policy: ErrorPolicy) -> Option<(usize, usize, bool
     Some((n, good, broke))
 }
 
-/// The exit code of a skip run that did not break: 5 when no event could
+/// The exit code of a skip run that did not break: 6 when no event could
 /// be read (docs/cli.md, exit codes), else 0.
 fn skip_code(good: usize) -> i32 {
     if good == 0 {
-        5
+        6
     } else {
         0
     }

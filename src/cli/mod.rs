@@ -53,26 +53,15 @@ impl Failure {
             Failure::Output(_) => Self::OUTPUT,
             Failure::Interrupted(_) => Self::INTERRUPTED,
             Failure::Refused(_) => Self::REFUSED,
-        }
-    }
-
-    /// The message, on one line (a refusal keeps its list of problems,
-    /// one per line).
-    pub fn message(&self) -> String {
-        match self {
-            Failure::Usage(m)
-            | Failure::Input(m)
-            | Failure::Output(m)
-            | Failure::Interrupted(m) => m.replace('\n', " "),
-            Failure::Refused(m) => m.clone(),
             Failure::NoEvents(_) => Self::NO_EVENTS,
         }
     }
 
-    /// The message. Configuration errors keep their line breaks (a TOML
-    /// error points at the line and column with a caret under the text),
-    /// indented under the first line; every other message is one line, as
-    /// it may quote input text.
+    /// The message. A refusal keeps its list of problems, one per line;
+    /// configuration errors keep their line breaks (a TOML error points at
+    /// the line and column with a caret under the text), indented under
+    /// the first line; every other message is one line, as it may quote
+    /// input text.
     pub fn message(&self) -> String {
         match self {
             Failure::Usage(m) => m.trim_end().replace('\n', "\n  "),
@@ -80,6 +69,7 @@ impl Failure {
             | Failure::Output(m)
             | Failure::Interrupted(m)
             | Failure::NoEvents(m) => m.replace('\n', " "),
+            Failure::Refused(m) => m.clone(),
         }
     }
 }
