@@ -257,7 +257,10 @@ fn no_events_check(
     let written = if output.as_os_str() == "-" {
         String::new()
     } else {
-        format!(" ({} written with every event accounted for)", output.display())
+        format!(
+            " ({} written with every event accounted for)",
+            output.display()
+        )
     };
     if summary.read == 0 {
         Err(Failure::NoEvents("the inputs hold no event".into()))
