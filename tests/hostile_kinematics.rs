@@ -200,7 +200,7 @@ fn check_results(p: &Pipeline, e: &Event, results: &[Reconstruction]) -> Result<
         let v = r.vars.as_ref().unwrap();
         prop_assert!(v.ht.is_finite() && v.ht >= 0.0, "ht {}", v.ht);
         prop_assert!(v.st.is_finite() && v.st >= 0.0, "st {}", v.st);
-        for x in [v.leading_jet_pt, v.m_ll_z, r.st_unclaimed]
+        for x in [v.lead_jet_pt, v.mll_z, r.st_unclaimed]
             .into_iter()
             .flatten()
         {
@@ -497,7 +497,7 @@ fn out_of_range_charges_do_not_panic() {
             let v = r.vars.expect("finite momenta give variables");
             // A Z-like pair (m = 90 GeV) does not count unless the charges
             // are exactly +1 and −1.
-            assert_eq!(v.m_ll_z, None, "charges {qa}, {qb}");
+            assert_eq!(v.mll_z, None, "charges {qa}, {qb}");
         }
     }
 }

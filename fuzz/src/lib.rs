@@ -267,7 +267,7 @@ pub fn check_reconstructions(
         for x in [v.ht, v.st] {
             assert!(x.is_finite() && x >= 0.0, "HT/ST {x} for event {event_id}");
         }
-        for x in [v.leading_jet_pt, v.m_ll_z, r.st_unclaimed]
+        for x in [v.lead_jet_pt, v.mll_z, r.st_unclaimed]
             .into_iter()
             .flatten()
         {

@@ -16,6 +16,7 @@
 //! beside the target and is renamed into place on `finish()`.
 #![deny(missing_docs)]
 
+pub mod columns;
 mod error;
 mod output;
 mod reader;

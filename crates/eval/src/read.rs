@@ -5,6 +5,10 @@
 //! every other column may be absent (its field is then `None`) and empty
 //! fields mean "does not apply".
 
+use quarry_csv::columns::{
+    CHI2, FIT_MASS, FIT_PROB, HYPOTHESIS, MASS_A, MASS_AVG, MASS_B, STATUS, TRUTH_COMPOSITES,
+    TRUTH_MATCH,
+};
 use std::io::Read;
 
 use crate::record::{EvalError, EvalRecord, SampleSpec};
@@ -12,7 +16,7 @@ use crate::record::{EvalError, EvalRecord, SampleSpec};
 /// The columns of the reconstruction output that can serve as the
 /// reconstructed heavy-quark mass: the fitted common mass of the
 /// equal-mass pair, the mean of the pair's two masses, and each of the two.
-pub const MASS_CANDIDATES: [&str; 4] = ["fit_mass", "mass_avg", "mass_a", "mass_b"];
+pub const MASS_CANDIDATES: [&str; 4] = [FIT_MASS.name, MASS_AVG.name, MASS_A.name, MASS_B.name];
 
 /// Which column holds the reconstructed mass.
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
@@ -83,7 +87,8 @@ pub fn read_sample(spec: &SampleSpec, mass: &MassColumn) -> Result<Vec<EvalRecor
 /// `source_name` names the input in errors; `sample` and `generated_mass`
 /// are stamped on every record (the rows do not carry them).
 ///
-/// Recognised columns: `hypothesis`, `status` (required); `fit_mass`,
+/// Recognised columns (their names from [`quarry_csv::columns`], the one
+/// definition of the output's columns): `hypothesis`, `status` (required); `fit_mass`,
 /// `mass_avg` or the [`MassColumn`] chosen; `chi2`; `fit_prob`;
 /// `truth_match` (`1`/`0`, or `true`/`false`); `truth_composites`
 /// (`name=1;name=0`, per-composite truth match). Numbers must be finite:
@@ -123,10 +128,10 @@ pub fn read_records(
             column: name.to_string(),
         })
     };
-    let hyp_col = required("hypothesis")?;
-    let status_col = required("status")?;
+    let hyp_col = required(HYPOTHESIS.name)?;
+    let status_col = required(STATUS.name)?;
     let (mass_cols, mass_names): (Vec<usize>, Vec<&str>) = match mass {
-        MassColumn::Auto => ["fit_mass", "mass_avg"]
+        MassColumn::Auto => [FIT_MASS.name, MASS_AVG.name]
             .into_iter()
             .filter_map(|n| find(n).map(|c| (c, n)))
             .unzip(),
@@ -141,10 +146,10 @@ pub fn read_records(
             candidate_cols.push((required(n)?, n.as_str()));
         }
     }
-    let chi2_col = find("chi2");
-    let prob_col = find("fit_prob");
-    let truth_col = find("truth_match");
-    let comp_col = find("truth_composites");
+    let chi2_col = find(CHI2.name);
+    let prob_col = find(FIT_PROB.name);
+    let truth_col = find(TRUTH_MATCH.name);
+    let comp_col = find(TRUTH_COMPOSITES.name);
 
     let mut out = Vec::new();
     let mut row = csv::StringRecord::new();
@@ -187,20 +192,22 @@ pub fn read_records(
         }
         let truth_match = match truth_col.map(field) {
             None | Some("") => None,
-            Some(t) => Some(parse_flag(t).ok_or_else(|| bad("truth_match", t, "expected 1 or 0"))?),
+            Some(t) => {
+                Some(parse_flag(t).ok_or_else(|| bad(TRUTH_MATCH.name, t, "expected 1 or 0"))?)
+            }
         };
         let composite_matches = match comp_col.map(field) {
             None | Some("") => Vec::new(),
             Some(t) => parse_composites(t)
-                .ok_or_else(|| bad("truth_composites", t, "expected name=1;name=0"))?,
+                .ok_or_else(|| bad(TRUTH_COMPOSITES.name, t, "expected name=1;name=0"))?,
         };
         let hypothesis = field(hyp_col);
         if hypothesis.is_empty() {
-            return Err(bad("hypothesis", hypothesis, "empty"));
+            return Err(bad(HYPOTHESIS.name, hypothesis, "empty"));
         }
         let status = field(status_col);
         if status.is_empty() {
-            return Err(bad("status", status, "empty"));
+            return Err(bad(STATUS.name, status, "empty"));
         }
         out.push(EvalRecord {
             sample: sample.to_string(),
@@ -208,8 +215,8 @@ pub fn read_records(
             hypothesis: hypothesis.to_string(),
             status: status.to_string(),
             mass: mass_value,
-            chi2: number(chi2_col, "chi2")?,
-            fit_prob: number(prob_col, "fit_prob")?,
+            chi2: number(chi2_col, CHI2.name)?,
+            fit_prob: number(prob_col, FIT_PROB.name)?,
             truth_match,
             composite_matches,
             mass_column,

@@ -18,11 +18,11 @@
 //! | `ht` | Σ pT of selected small-radius jets (common practice) |
 //! | `st` | `ht` + Σ pT of selected electrons and muons + MET (common practice) |
 //! | `st_unclaimed` | `st` − Σ pT of the distinct objects used by the top-pair reconstruction: the hadronic top's three jets, the leptonic top's b-jet, the lepton and the MET. Small (only extra radiation) for top-pair events, large for signal with extra heavy objects |
-//! | `leading_jet_pt` | pT of the highest-pT selected jet (`None` without jets) |
-//! | `m_ll_z` | m(ℓℓ) of the same-flavour opposite-sign pair whose mass is closest to [`quarry_pdg::Z_MASS`] (`None` with < 2 leptons or no such pair) |
+//! | `lead_jet_pt` | pT of the highest-pT selected jet (`None` without jets) |
+//! | `mll_z` | m(ℓℓ) of the same-flavour opposite-sign pair whose mass is closest to [`quarry_pdg::Z_MASS`] (`None` with < 2 leptons or no such pair) |
 //! | `same_sign` | at least one pair of leptons (any flavours) with equal, known charge |
-//! | `n_fat_w` | number of large-radius jets whose mass lies in the W window (default 60–100 GeV: a typical window, from memory) |
-//! | `n_jets`, `n_bjets`, `n_leptons`, `n_fat_jets` | counts; b-tagged means [`Selection::is_btagged`] |
+//! | `n_fatjets_w` | number of large-radius jets whose mass lies in the W window (default 60–100 GeV: a typical window, from memory) |
+//! | `n_jets`, `n_bjets`, `n_leptons`, `n_fatjets` | counts; b-tagged means [`Selection::is_btagged`] |
 //!
 //! ```
 //! use quarry_event::{Event, FourMomentum, Jet, Met, Selection};
@@ -249,17 +249,17 @@ pub struct EventVars {
     /// Selected electrons + muons.
     pub n_leptons: usize,
     /// Selected large-radius jets.
-    pub n_fat_jets: usize,
+    pub n_fatjets: usize,
     /// Large-radius jets with mass inside the W window.
-    pub n_fat_w: usize,
+    pub n_fatjets_w: usize,
     /// HT \[GeV\] (see [`ht`]).
     pub ht: f64,
     /// ST \[GeV\] (see [`st`]).
     pub st: f64,
     /// Leading jet pT \[GeV\], `None` without jets.
-    pub leading_jet_pt: Option<f64>,
+    pub lead_jet_pt: Option<f64>,
     /// See [`m_ll_closest_to_z`].
-    pub m_ll_z: Option<f64>,
+    pub mll_z: Option<f64>,
     /// See [`has_same_sign_pair`].
     pub same_sign: bool,
 }
@@ -277,7 +277,7 @@ impl EventVars {
     /// use quarry_event::{Event, Selection};
     /// use quarry_vars::{EventVars, VarsConfig};
     /// let v = EventVars::compute(&Event::new(1), &Selection::default(), &VarsConfig::default()).unwrap();
-    /// assert_eq!((v.n_jets, v.ht, v.leading_jet_pt), (0, 0.0, None));
+    /// assert_eq!((v.n_jets, v.ht, v.lead_jet_pt), (0, 0.0, None));
     /// ```
     pub fn compute(
         event: &Event,
@@ -303,8 +303,8 @@ impl EventVars {
                 .filter(|j| selection.is_btagged(j))
                 .count(),
             n_leptons: event.n_leptons(),
-            n_fat_jets: event.fat_jets.len(),
-            n_fat_w: event
+            n_fatjets: event.fat_jets.len(),
+            n_fatjets_w: event
                 .fat_jets
                 .iter()
                 .filter(|j| {
@@ -314,16 +314,16 @@ impl EventVars {
                 .count(),
             ht: ht(event),
             st: st(event),
-            leading_jet_pt: event.jets.iter().map(|j| j.p4.pt()).reduce(f64::max),
-            m_ll_z: m_ll_closest_to_z(event),
+            lead_jet_pt: event.jets.iter().map(|j| j.p4.pt()).reduce(f64::max),
+            mll_z: m_ll_closest_to_z(event),
             same_sign: has_same_sign_pair(event),
         };
         // Finite inputs can still overflow: px = py = 1e308 has pT = +inf,
         // and a mass of two such leptons is NaN.
         let finite_result = vars.ht.is_finite()
             && vars.st.is_finite()
-            && vars.leading_jet_pt.is_none_or(f64::is_finite)
-            && vars.m_ll_z.is_none_or(f64::is_finite);
+            && vars.lead_jet_pt.is_none_or(f64::is_finite)
+            && vars.mll_z.is_none_or(f64::is_finite);
         if !finite_result {
             return Err(VarsError::NonFinite);
         }
@@ -441,11 +441,11 @@ mod tests {
         // b-tag scores 0.9 and 0.8 exceed the default 0.5 working point.
         assert_eq!(v.n_bjets, 2);
         assert_eq!(v.n_leptons, 1);
-        assert_eq!(v.n_fat_jets, 5);
+        assert_eq!(v.n_fatjets, 5);
         // 85 and 99 are inside [60, 100]; 59, 101 and 172 are not.
-        assert_eq!(v.n_fat_w, 2);
-        assert_eq!(v.leading_jet_pt, Some(130.0));
-        assert_eq!(v.m_ll_z, None); // one lepton
+        assert_eq!(v.n_fatjets_w, 2);
+        assert_eq!(v.lead_jet_pt, Some(130.0));
+        assert_eq!(v.mll_z, None); // one lepton
         assert!(!v.same_sign);
         // A tighter b-tag working point counts one jet.
         let tight = Selection {
