@@ -12,7 +12,9 @@
 //! **Design decision:** the solver is a small `Copy` value ([`WMassSolver`])
 //! whose result ([`NeutrinoSolutions`]) is also `Copy` and lives on the stack
 //! (at most two roots, no heap), because the assignment search calls it for
-//! every lepton of every event and the kinematic fit calls it inside its loop.
+//! every lepton of every event. (The kinematic fit does not call it: it
+//! starts from the neutrino the search solved and fits its momentum with the
+//! W-mass constraint as one of its own.)
 //! The real case is a closed formula with no iteration.
 //!
 //! # The equation
