@@ -15,7 +15,25 @@
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use quarry::assign::{presets, BtagPolicy, SearchConfig, Searcher};
 use quarry::event::Event;
+use quarry::toy::{Branching, DecayMode, Generator, HeavyQuark, Partner, ToyConfig};
 use std::hint::black_box;
+
+/// Toy T T̄ events at 1200 GeV with the given branching fractions (H → b b̄
+/// and the rest as the toy generates them), with at least one lepton and
+/// `n_jets` or more jets, cut to their leading `n_jets` jets (the toy sorts
+/// jets by pt): a search workload with exactly that many jets.
+fn higgs_events(branching: Branching, n_jets: usize, n_events: usize) -> Vec<Event> {
+    let quark = HeavyQuark::new(Partner::UpType, 1200.0).with_branching(branching);
+    Generator::new(ToyConfig::heavy_pair(quark), 17)
+        .expect("toy config")
+        .filter(|e| e.jets.len() >= n_jets && e.electrons.len() + e.muons.len() >= 1)
+        .map(|mut e| {
+            e.jets.truncate(n_jets);
+            e
+        })
+        .take(n_events)
+        .collect()
+}
 
 // The event generator is shared with the instruction-count workload
 // (`cargo run --release -p quarry-assign --example search_workload`).
@@ -113,6 +131,49 @@ fn benches(c: &mut Criterion) {
         "twtw-ljets",
         BtagPolicy::Ignore,
         &tw10,
+        false,
+    );
+    let only_th = Branching::only(DecayMode::TopHiggs);
+    let (th8, th10) = (
+        higgs_events(only_th, 8, 512),
+        higgs_events(only_th, 10, 512),
+    );
+    let mixed = Branching {
+        b_w: 0.5,
+        t_h: 0.5,
+        ..Branching::default()
+    };
+    let (bwth8, bwth10) = (higgs_events(mixed, 8, 512), higgs_events(mixed, 10, 512));
+    bench_case(
+        c,
+        "thth_8jets",
+        "thth-ljets",
+        BtagPolicy::default(),
+        &th8,
+        true,
+    );
+    bench_case(
+        c,
+        "thth_10jets",
+        "thth-ljets",
+        BtagPolicy::default(),
+        &th10,
+        false,
+    );
+    bench_case(
+        c,
+        "bwth_8jets",
+        "bwth-ljets",
+        BtagPolicy::default(),
+        &bwth8,
+        true,
+    );
+    bench_case(
+        c,
+        "bwth_10jets",
+        "bwth-ljets",
+        BtagPolicy::default(),
+        &bwth10,
         false,
     );
 }

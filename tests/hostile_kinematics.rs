@@ -176,6 +176,8 @@ fn pipelines() -> &'static [Pipeline; 2] {
                 .preset("bwbw-ljets")
                 .preset("tz-3l")
                 .preset("twtw-ljets-boosted")
+                .preset("bwth-ljets")
+                .preset("thth-ljets")
                 .no_selection()
                 .fit(fit)
                 .build()

@@ -21,7 +21,7 @@ use crate::Hypothesis;
 pub const TTBAR_LJETS: &str = "ttbar-ljets";
 
 /// (name, one-line description, TOML text).
-const PRESETS: [(&str, &str, &str); 8] = [
+const PRESETS: [(&str, &str, &str); 10] = [
     (
         TTBAR_LJETS,
         "top pair, lepton+jets: hadronic W and both top masses (dominant background; objects feed the residual sum)",
@@ -61,6 +61,16 @@ const PRESETS: [(&str, &str, &str); 8] = [
         "tw-had5",
         "one heavy quark to tW, fully hadronic (same-sign dilepton events): five jets, two W and one top mass",
         include_str!("../presets/tw-had5.toml"),
+    ),
+    (
+        "bwth-ljets",
+        "heavy-quark pair to bW tH, H to bb, lepton+jets (lepton from the W), resolved: W, top, H and equal-mass constraints, 3-4 b-tags, up to 10 jets",
+        include_str!("../presets/bwth-ljets.toml"),
+    ),
+    (
+        "thth-ljets",
+        "heavy-quark pair to tH tH, H to bb, lepton+jets, resolved: W, top, H and equal-mass constraints, 4+ b-tags, up to 10 jets",
+        include_str!("../presets/thth-ljets.toml"),
     ),
 ];
 

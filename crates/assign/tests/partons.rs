@@ -11,7 +11,7 @@
 use quarry_assign::{presets, BtagPolicy, Hypothesis, SearchConfig, SearchStatus, Searcher};
 use quarry_event::{Event, FatJet, Flavour, Jet, Lepton, Met, Truth};
 use quarry_lorentz::FourMomentum;
-use quarry_pdg::{BOTTOM_MASS, ELECTRON_MASS, MUON_MASS, TOP_MASS, W_MASS, Z_MASS};
+use quarry_pdg::{BOTTOM_MASS, ELECTRON_MASS, HIGGS_MASS, MUON_MASS, TOP_MASS, W_MASS, Z_MASS};
 use rand::{Rng, SeedableRng};
 use rand_pcg::Pcg64;
 
@@ -231,6 +231,73 @@ fn twtw_event(rng: &mut Pcg64, id: u64, boosted: bool) -> Event {
     b.jet(q5, 0.0, "l.W.q").jet(q6, 0.0, "l.W.q");
     b.isr(rng);
     b.e
+}
+
+/// H → b b̄ with labels `<prefix>.b`.
+fn higgs_to_bb(rng: &mut Pcg64, b: &mut Builder, h: FourMomentum, prefix: &str) {
+    let (b1, b2) = decay(rng, h, BOTTOM_MASS, BOTTOM_MASS);
+    b.jet(b1, 1.0, &format!("{prefix}.b"))
+        .jet(b2, 1.0, &format!("{prefix}.b"));
+}
+
+#[test]
+fn bwth_partons() {
+    let h = presets::get("bwth-ljets").unwrap();
+    let mut rng = Pcg64::seed_from_u64(21);
+    for id in 0..10 {
+        let mut b = Builder::new(id);
+        let par = parent(&mut rng, 1200.0);
+        let (t, higgs) = decay(&mut rng, par, TOP_MASS, HIGGS_MASS);
+        hadronic_top(&mut rng, &mut b, t, "h.t");
+        higgs_to_bb(&mut rng, &mut b, higgs, "h.H");
+        // Q → b W(→ μ ν): the same label layout as a leptonic top.
+        let par = parent(&mut rng, 1200.0);
+        leptonic_top(&mut rng, &mut b, par, "l");
+        b.isr(&mut rng);
+        for policy in [BtagPolicy::default(), BtagPolicy::weighted_default()] {
+            check(
+                &h,
+                &b.e,
+                policy,
+                &[
+                    ("Q_had", 1200.0),
+                    ("Q_lep", 1200.0),
+                    ("H_had", HIGGS_MASS),
+                    ("t_had", TOP_MASS),
+                ],
+            );
+        }
+    }
+}
+
+#[test]
+fn thth_partons() {
+    let h = presets::get("thth-ljets").unwrap();
+    let mut rng = Pcg64::seed_from_u64(22);
+    for id in 0..10 {
+        let mut b = Builder::new(id);
+        let par = parent(&mut rng, 1200.0);
+        let (t, higgs) = decay(&mut rng, par, TOP_MASS, HIGGS_MASS);
+        hadronic_top(&mut rng, &mut b, t, "h.t");
+        higgs_to_bb(&mut rng, &mut b, higgs, "h.H");
+        let par = parent(&mut rng, 1200.0);
+        let (t, higgs) = decay(&mut rng, par, TOP_MASS, HIGGS_MASS);
+        leptonic_top(&mut rng, &mut b, t, "l.t");
+        higgs_to_bb(&mut rng, &mut b, higgs, "l.H");
+        b.isr(&mut rng);
+        check(
+            &h,
+            &b.e,
+            BtagPolicy::default(),
+            &[
+                ("Q_had", 1200.0),
+                ("Q_lep", 1200.0),
+                ("H_had", HIGGS_MASS),
+                ("H_lep", HIGGS_MASS),
+                ("t_lep", TOP_MASS),
+            ],
+        );
+    }
 }
 
 #[test]

@@ -156,6 +156,16 @@ proptest! {
     fn twtw_boosted_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
         check_preset("twtw-ljets-boosted", seed, policy, k, 9);
     }
+
+    #[test]
+    fn bwth_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
+        check_preset("bwth-ljets", seed, policy, k, 9);
+    }
+
+    #[test]
+    fn thth_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
+        check_preset("thth-ljets", seed, policy, k, 9);
+    }
 }
 
 #[test]

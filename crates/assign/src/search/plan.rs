@@ -574,6 +574,11 @@ mod tests {
                     if *name == "bwbw-ljets" {
                         assert!(plan.pair_join.is_some(), "{name} {btag:?} {n_jets}");
                         assert_eq!(lepton_sides.count(), 1, "{name} {btag:?} {n_jets}");
+                    } else if *name == "bwth-ljets" {
+                        // Its lepton side is a bW pair's (lepton + neutrino +
+                        // b listed); its other side (t + H) is not a W pair + b.
+                        assert!(plan.pair_join.is_none(), "{name}");
+                        assert_eq!(lepton_sides.count(), 1, "{name} {btag:?} {n_jets}");
                     } else {
                         // Other presets' joins (tgtg-ljets has one) have
                         // more roles on each side than these shapes.
