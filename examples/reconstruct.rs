@@ -5,7 +5,7 @@
 //! Run with `cargo run --example reconstruct`.
 
 use quarry::assign::Hypothesis;
-use quarry::event::{Event, Flavour, Jet, Lepton, Met, Truth};
+use quarry::event::{Event, Jet, Lepton, Met, Truth};
 use quarry::lorentz::FourMomentum;
 use quarry::toy::{Generator, HeavyQuark, Partner, ToyConfig};
 use quarry::{Pipeline, Status};
@@ -20,20 +20,20 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         (48.0, 0.9, 2.6, 0.15, "h.W.q"),
         (71.0, -1.0, -2.0, 0.81, "l.b"),
     ];
-    for (i, (pt, eta, phi, btag, truth)) in jets.into_iter().enumerate() {
-        event.jets.push(
+    // add_jet numbers each jet by its position (outputs name jets by it).
+    for (pt, eta, phi, btag, truth) in jets {
+        event.add_jet(
             Jet::new(FourMomentum::from_pt_eta_phi_m(pt, eta, phi, 5.0), btag)
-                .with_truth(Truth::new(truth).expect("valid label"))
-                .with_index(i as u32),
+                .with_truth(Truth::new(truth).expect("valid label")),
         );
     }
-    event.muons.push(Lepton {
-        p4: FourMomentum::from_pt_eta_phi_m(45.0, -0.8, 2.6, quarry::pdg::MUON_MASS),
-        flavour: Flavour::Muon,
-        charge: -1,
-        truth: Truth::new("l.W.mu"),
-        index: 0,
-    });
+    event.add_lepton(
+        Lepton::muon(
+            FourMomentum::from_pt_eta_phi_m(45.0, -0.8, 2.6, quarry::pdg::MUON_MASS),
+            -1,
+        )
+        .with_truth(Truth::new("l.W.mu").expect("valid label")),
+    );
     event.met = Met::new(-38.0, -9.0);
 
     // 2. A pipeline: a preset by name, plus a hypothesis loaded from TOML

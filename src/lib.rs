@@ -32,6 +32,11 @@
 //! ```
 #![deny(missing_docs)]
 
+// The README's Rust snippets are compiled and run as doc tests.
+#[cfg(doctest)]
+#[doc = include_str!("../README.md")]
+pub struct ReadmeDoctests;
+
 pub use quarry_assign as assign;
 pub use quarry_csv as csv;
 pub use quarry_eval as eval;

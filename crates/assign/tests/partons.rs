@@ -59,7 +59,7 @@ impl Builder {
             p4,
             flavour,
             charge,
-            truth: Truth::new(label),
+            truth: Truth::new(label).ok(),
             index: 0,
         };
         match flavour {
@@ -217,7 +217,7 @@ fn twtw_event(rng: &mut Pcg64, id: u64, boosted: bool) -> Event {
     if boosted {
         b.e.fat_jets.push(FatJet {
             p4: w2,
-            truth: Truth::new("h.W"),
+            truth: Truth::new("h.W").ok(),
             index: 0,
         });
     } else {
@@ -473,8 +473,8 @@ fn truth_match_rules() {
     assert!(h.truth_match(&swapped, &best).unwrap().all());
     // Swap the b labels: the tops fail, the hadronic W still matches.
     let mut wrong = e.clone();
-    wrong.jets[0].truth = Truth::new("l.b");
-    wrong.jets[3].truth = Truth::new("h.b");
+    wrong.jets[0].truth = Truth::new("l.b").ok();
+    wrong.jets[3].truth = Truth::new("h.b").ok();
     let m = h.truth_match(&wrong, &best).unwrap();
     assert!(!m.all());
     assert!(m.composite(h.composite_index("W_had").unwrap()));

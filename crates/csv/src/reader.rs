@@ -1212,7 +1212,7 @@ fn parse_row(ctx: &RowCtx<'_>, options: &ReadOptions, block: &mut Block) -> Resu
         if text.is_empty() {
             None
         } else {
-            Some(Truth::new(text).ok_or_else(|| {
+            Some(Truth::new(text).map_err(|_| {
                 ctx.err(
                     cols.truth.expect("truth parsed"),
                     text,

@@ -25,14 +25,24 @@
 //! side. Extra radiation is `isr`. Hypothesis roles name the labels they
 //! accept, with `*` matching one segment.
 //!
+//! Build events with the `add_*` methods: they number each object by its
+//! position among its kind (the `index` that outputs use to name input
+//! objects), and put a lepton in the list of its own flavour.
+//!
 //! ```
-//! use quarry_event::{Event, Jet, Met, Truth};
+//! use quarry_event::{Event, Jet, Lepton, Met, Truth};
 //! use quarry_lorentz::FourMomentum;
 //! let mut event = Event::new(7);
-//! event.jets.push(Jet::new(FourMomentum::from_pt_eta_phi_m(80.0, 0.1, 0.2, 9.0), 0.9)
-//!     .with_truth(Truth::new("h.b").unwrap()));
-//! event.met = Met::new(30.0, -10.0);
+//! event
+//!     .add_jet(Jet::new(FourMomentum::from_pt_eta_phi_m(80.0, 0.1, 0.2, 9.0), 0.9)
+//!         .with_truth(Truth::new("h.b")?))
+//!     .add_jet(Jet::new(FourMomentum::from_pt_eta_phi_m(60.0, -0.4, 2.0, 7.0), 0.1))
+//!     .add_lepton(Lepton::electron(FourMomentum::from_pt_eta_phi_m(40.0, 0.3, -1.0, 0.000511), -1));
+//! event.met = Met::from_pt_phi(30.0, -0.3);
 //! assert_eq!(event.jets[0].truth.unwrap().as_str(), "h.b");
+//! assert_eq!((event.jets[0].index, event.jets[1].index), (0, 1));
+//! assert_eq!(event.electrons.len(), 1);
+//! # Ok::<(), quarry_event::TruthError>(())
 //! ```
 #![deny(missing_docs)]
 
@@ -42,6 +52,17 @@ pub use quarry_lorentz::{FourMomentum, Momentum};
 
 mod selection;
 pub use selection::Selection;
+
+/// Why a text is not a truth label.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+#[error(
+    "'{text}' is not a truth label (1-{} printable ASCII characters, no commas or spaces)",
+    Truth::CAPACITY
+)]
+pub struct TruthError {
+    /// The rejected text.
+    pub text: String,
+}
 
 /// A truth label of at most [`Truth::CAPACITY`] ASCII bytes, stored inline.
 ///
@@ -57,27 +78,30 @@ impl Truth {
     /// The longest label that fits.
     pub const CAPACITY: usize = 23;
 
-    /// Makes a label; `None` if `text` is empty, longer than
+    /// Makes a label; a [`TruthError`] if `text` is empty, longer than
     /// [`CAPACITY`](Self::CAPACITY), or has bytes other than printable ASCII
     /// without commas and spaces.
     ///
     /// ```
     /// use quarry_event::Truth;
-    /// assert!(Truth::new("l.W.mu").is_some());
-    /// assert!(Truth::new("").is_none());
-    /// assert!(Truth::new("has space").is_none());
+    /// assert!(Truth::new("l.W.mu").is_ok());
+    /// assert!(Truth::new("").is_err());
+    /// let e = Truth::new("has space").unwrap_err();
+    /// assert!(e.to_string().starts_with("'has space' is not a truth label"));
     /// ```
-    pub fn new(text: &str) -> Option<Truth> {
+    pub fn new(text: &str) -> Result<Truth, TruthError> {
         let b = text.as_bytes();
         if b.is_empty()
             || b.len() > Self::CAPACITY
             || !b.iter().all(|&c| c.is_ascii_graphic() && c != b',')
         {
-            return None;
+            return Err(TruthError {
+                text: text.to_string(),
+            });
         }
         let mut bytes = [0u8; Self::CAPACITY];
         bytes[..b.len()].copy_from_slice(b);
-        Some(Truth {
+        Ok(Truth {
             len: b.len() as u8,
             bytes,
         })
@@ -140,8 +164,8 @@ pub struct Jet {
     /// Simulation truth label, if the input has one.
     pub truth: Option<Truth>,
     /// Position among this event's jets in the input (0-based). The reader
-    /// sets it and selection keeps it, so outputs can name input jets after
-    /// selection has removed and re-ordered some.
+    /// and [`Event::add_jet`] set it and selection keeps it, so outputs can
+    /// name input jets after selection has removed and re-ordered some.
     pub index: u32,
 }
 
@@ -194,6 +218,13 @@ impl Momentum for Jet {
 }
 
 /// A large-radius jet, which may contain a whole hadronic W, Z, H or top.
+///
+/// ```
+/// use quarry_event::{Event, FatJet, FourMomentum};
+/// let mut e = Event::new(1);
+/// e.add_fat_jet(FatJet::new(FourMomentum::from_pt_eta_phi_m(450.0, 0.2, 1.0, 82.0)));
+/// assert_eq!(e.fat_jets[0].index, 0);
+/// ```
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct FatJet {
     /// Four-momentum \[GeV\]; its mass is the jet mass used in mass windows.
@@ -202,6 +233,24 @@ pub struct FatJet {
     pub truth: Option<Truth>,
     /// Position among this event's large-radius jets in the input (0-based).
     pub index: u32,
+}
+
+impl FatJet {
+    /// A large-radius jet without truth (index set by
+    /// [`Event::add_fat_jet`]).
+    pub fn new(p4: FourMomentum) -> FatJet {
+        FatJet {
+            p4,
+            truth: None,
+            index: 0,
+        }
+    }
+
+    /// The same jet with a truth label.
+    pub fn with_truth(mut self, truth: Truth) -> FatJet {
+        self.truth = Some(truth);
+        self
+    }
 }
 
 impl Momentum for FatJet {
@@ -238,6 +287,42 @@ pub struct Lepton {
     pub index: u32,
 }
 
+impl Lepton {
+    /// An electron of charge −1 or +1 (0 if unknown), without truth; its
+    /// index is set by [`Event::add_lepton`].
+    ///
+    /// ```
+    /// use quarry_event::{Flavour, FourMomentum, Lepton};
+    /// let e = Lepton::electron(FourMomentum::from_pt_eta_phi_m(30.0, 0.0, 0.0, 0.000511), 1);
+    /// assert_eq!((e.flavour, e.charge), (Flavour::Electron, 1));
+    /// ```
+    pub fn electron(p4: FourMomentum, charge: i8) -> Lepton {
+        Lepton::new(p4, Flavour::Electron, charge)
+    }
+
+    /// A muon (as [`electron`](Self::electron)).
+    pub fn muon(p4: FourMomentum, charge: i8) -> Lepton {
+        Lepton::new(p4, Flavour::Muon, charge)
+    }
+
+    /// A lepton of either flavour, without truth.
+    pub fn new(p4: FourMomentum, flavour: Flavour, charge: i8) -> Lepton {
+        Lepton {
+            p4,
+            flavour,
+            charge,
+            truth: None,
+            index: 0,
+        }
+    }
+
+    /// The same lepton with a truth label.
+    pub fn with_truth(mut self, truth: Truth) -> Lepton {
+        self.truth = Some(truth);
+        self
+    }
+}
+
 impl Momentum for Lepton {
     #[inline]
     fn p4(&self) -> FourMomentum {
@@ -268,6 +353,17 @@ impl Met {
     /// ```
     pub fn new(px: f64, py: f64) -> Met {
         Met { px, py, cov: None }
+    }
+
+    /// MET of magnitude `pt` \[GeV\] at azimuth `phi`, without covariance.
+    ///
+    /// ```
+    /// let m = quarry_event::Met::from_pt_phi(50.0, std::f64::consts::FRAC_PI_2);
+    /// assert!(m.px.abs() < 1e-12 && (m.py - 50.0).abs() < 1e-12);
+    /// assert!((m.pt() - 50.0).abs() < 1e-12);
+    /// ```
+    pub fn from_pt_phi(pt: f64, phi: f64) -> Met {
+        Met::new(pt * phi.cos(), pt * phi.sin())
     }
 
     /// Magnitude \[GeV\].
@@ -330,6 +426,77 @@ impl Event {
             weight: 1.0,
             ..Event::default()
         }
+    }
+
+    /// Adds a jet, numbering it by its position among the event's jets
+    /// (its `index`, which outputs use to name it).
+    ///
+    /// ```
+    /// use quarry_event::{Event, FourMomentum, Jet};
+    /// let mut e = Event::new(1);
+    /// e.add_jet(Jet::new(FourMomentum::ZERO, 0.0)).add_jet(Jet::new(FourMomentum::ZERO, 0.0));
+    /// assert_eq!(e.jets[1].index, 1);
+    /// ```
+    pub fn add_jet(&mut self, jet: Jet) -> &mut Event {
+        let index = self.jets.len() as u32;
+        self.jets.push(jet.with_index(index));
+        self
+    }
+
+    /// Adds a charged lepton to the list of its flavour, numbered by its
+    /// position among the leptons of that flavour (`e0`, `mu1` in outputs).
+    ///
+    /// ```
+    /// use quarry_event::{Event, FourMomentum, Lepton};
+    /// let p4 = FourMomentum::from_pt_eta_phi_m(30.0, 0.0, 0.0, 0.105);
+    /// let mut e = Event::new(1);
+    /// e.add_lepton(Lepton::muon(p4, -1)).add_lepton(Lepton::electron(p4, 1));
+    /// assert_eq!((e.muons.len(), e.electrons.len()), (1, 1));
+    /// assert_eq!(e.electrons[0].index, 0);
+    /// ```
+    pub fn add_lepton(&mut self, lepton: Lepton) -> &mut Event {
+        let list = match lepton.flavour {
+            Flavour::Electron => &mut self.electrons,
+            Flavour::Muon => &mut self.muons,
+        };
+        let index = list.len() as u32;
+        list.push(Lepton { index, ..lepton });
+        self
+    }
+
+    /// Adds a large-radius jet, numbered by its position among them.
+    pub fn add_fat_jet(&mut self, jet: FatJet) -> &mut Event {
+        let index = self.fat_jets.len() as u32;
+        self.fat_jets.push(FatJet { index, ..jet });
+        self
+    }
+
+    /// Whether every object's `index` is its position among its kind (and
+    /// flavour), as the `add_*` methods and the reader set them, and every
+    /// lepton sits in the list of its flavour. An event built by pushing
+    /// objects into the public lists without indices fails this (all its
+    /// jets would be named `0` in outputs).
+    ///
+    /// ```
+    /// use quarry_event::{Event, FourMomentum, Jet};
+    /// let mut e = Event::new(1);
+    /// e.jets.push(Jet::new(FourMomentum::ZERO, 0.0));
+    /// e.jets.push(Jet::new(FourMomentum::ZERO, 0.0));
+    /// assert!(!e.indices_are_positions());
+    /// ```
+    pub fn indices_are_positions(&self) -> bool {
+        let positional = |indices: &mut dyn Iterator<Item = u32>| {
+            indices.enumerate().all(|(i, x)| x as usize == i)
+        };
+        positional(&mut self.jets.iter().map(|j| j.index))
+            && positional(&mut self.fat_jets.iter().map(|j| j.index))
+            && positional(&mut self.electrons.iter().map(|l| l.index))
+            && positional(&mut self.muons.iter().map(|l| l.index))
+            && self
+                .electrons
+                .iter()
+                .all(|l| l.flavour == Flavour::Electron)
+            && self.muons.iter().all(|l| l.flavour == Flavour::Muon)
     }
 
     /// Electrons then muons, as one iterator.
