@@ -139,5 +139,5 @@ pub use input::{
     Composite, Constraint, FitInput, FitInputError, Measured, MeasuredKind, NeutrinoStart,
     MAX_COMMON_MASSES, MAX_COMPOSITES, MAX_CONSTRAINTS, MAX_OBJECTS, MAX_PARAMS,
 };
-pub use problem::{HessianMatrix, KinematicChi2, Params, MAX_TERMS, NEUTRINO_MASS2_REGULATOR};
+pub use problem::{HessianMatrix, KinematicChi2, Params};
 pub use stats::chi2_survival;

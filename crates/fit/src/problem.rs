@@ -250,11 +250,11 @@ impl ArgminInv<HessianMatrix> for HessianMatrix {
 }
 
 /// Most constraint terms: a `Mass` constraint gives one, an `EqualMass` two.
-pub const MAX_TERMS: usize = 2 * MAX_CONSTRAINTS;
+pub(crate) const MAX_TERMS: usize = 2 * MAX_CONSTRAINTS;
 
 /// Neutrino mass² (GeV²) used in E_ν = sqrt(|p|² + ε²): a regulator that
 /// keeps E_ν differentiable at p = 0, far below any resolution.
-pub const NEUTRINO_MASS2_REGULATOR: f64 = 1e-12;
+pub(crate) const NEUTRINO_MASS2_REGULATOR: f64 = 1e-12;
 
 #[derive(Clone, Copy, Debug, PartialEq)]
 enum Target {
