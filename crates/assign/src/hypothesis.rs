@@ -211,13 +211,22 @@ pub struct Composite {
     /// (then `parts` stay empty).
     pub whole: Option<usize>,
     /// Every role under this composite, recursively, including `whole` and
-    /// the roles it would replace, as a bit mask over role indices.
-    pub leaf_mask: u16,
+    /// the roles it would replace, as a bit mask over role indices (the
+    /// search's representation; users read it through
+    /// [`leaves`](Self::leaves)).
+    pub(crate) leaf_mask: u16,
 }
 
 impl Composite {
-    /// Indices of every role under this composite (see
-    /// [`leaf_mask`](Self::leaf_mask)), ascending.
+    /// Indices of every role under this composite, recursively, including
+    /// `whole` and the roles it would replace, ascending.
+    ///
+    /// ```
+    /// let h = quarry_assign::presets::get("ttbar-ljets").unwrap();
+    /// let t_had = &h.composites()[h.composite_index("t_had").unwrap()];
+    /// let names: Vec<&str> = t_had.leaves().map(|r| h.roles()[r].name.as_str()).collect();
+    /// assert_eq!(names, ["b_had", "q1", "q2"]);
+    /// ```
     pub fn leaves(&self) -> impl Iterator<Item = usize> + '_ {
         (0..MAX_ROLES).filter(move |r| self.leaf_mask & (1 << r) != 0)
     }
@@ -476,7 +485,7 @@ impl Hypothesis {
     }
 
     /// Composite indices ordered children-before-parents.
-    pub fn composites_bottom_up(&self) -> &[usize] {
+    pub(crate) fn composites_bottom_up(&self) -> &[usize] {
         &self.topo
     }
 
