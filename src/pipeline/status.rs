@@ -31,11 +31,17 @@ pub enum Status {
     /// The event could not be used: rejected by the CSV reader, or (for
     /// events built in code) a non-finite momentum or weight.
     BadInput,
+    /// The search reached its per-event budget
+    /// ([`quarry_assign::SearchBudget`]) before it was exact; the detail
+    /// names the budget.
+    BudgetExceeded,
+    /// The search was stopped by a cancellation (a signal) while it ran.
+    Cancelled,
 }
 
 impl Status {
     /// Every status, in a fixed order.
-    pub const ALL: [Status; 8] = [
+    pub const ALL: [Status; 10] = [
         Status::Ok,
         Status::TooFewJets,
         Status::TooFewLeptons,
@@ -44,6 +50,8 @@ impl Status {
         Status::NoValidAssignment,
         Status::FitNotConverged,
         Status::BadInput,
+        Status::BudgetExceeded,
+        Status::Cancelled,
     ];
 
     /// The stable snake_case name used in outputs.
@@ -61,6 +69,8 @@ impl Status {
             Status::NoValidAssignment => "no_valid_assignment",
             Status::FitNotConverged => "fit_not_converged",
             Status::BadInput => "bad_input",
+            Status::BudgetExceeded => "budget_exceeded",
+            Status::Cancelled => "cancelled",
         }
     }
 }
@@ -92,6 +102,8 @@ impl Status {
             ),
             SearchStatus::NeutrinoFailed(e) => (Status::NeutrinoFailed, e.to_string()),
             SearchStatus::NoValidAssignment => (Status::NoValidAssignment, String::new()),
+            SearchStatus::BudgetExceeded(limit) => (Status::BudgetExceeded, limit.to_string()),
+            SearchStatus::Cancelled => (Status::Cancelled, String::new()),
         }
     }
 

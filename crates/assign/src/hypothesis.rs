@@ -129,6 +129,43 @@ pub enum HypothesisError {
         /// The pattern.
         pattern: String,
     },
+    /// The hypothesis name is empty, longer than 64 characters, or has a
+    /// character outside letters, digits, `-`, `_` and `.` (names are
+    /// written unquoted into output rows and file names).
+    #[error("hypothesis name `{0}` is invalid: use 1 to 64 letters, digits, `-`, `_` or `.`")]
+    BadName(String),
+    /// The worst case of one event's search (see
+    /// [`Hypothesis::worst_case_assignments`]) is beyond
+    /// [`MAX_WORST_CASE_ASSIGNMENTS`].
+    #[error(
+        "up to {count:.3e} assignments per event with leading_jets = {leading_jets} \
+         (at most {max:.0e} supported): use fewer leading jets, b-tag \
+         requirements or interchangeable groups"
+    )]
+    TooManyAssignments {
+        /// The worst-case count.
+        count: f64,
+        /// The hypothesis's `leading_jets`.
+        leading_jets: usize,
+        /// [`MAX_WORST_CASE_ASSIGNMENTS`].
+        max: f64,
+    },
+}
+
+/// Most assignments one event may have in the worst case
+/// ([`Hypothesis::worst_case_assignments`]) for a hypothesis to load:
+/// 10^11, over an hour of one core at the search's rate of tens of millions
+/// per second. The per-event [`crate::SearchBudget`] stops such events
+/// anyway; this rejects files that could never be searched exactly.
+pub const MAX_WORST_CASE_ASSIGNMENTS: f64 = 1e11;
+
+/// Whether `name` is a usable hypothesis name (see
+/// [`HypothesisError::BadName`]).
+fn valid_hypothesis_name(name: &str) -> bool {
+    (1..=64).contains(&name.len())
+        && name
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
 }
 
 /// Which b-tag state a jet role needs.
@@ -442,7 +479,60 @@ impl Hypothesis {
     /// items for the fixed buffers, non-symmetric interchangeable groups.
     pub fn from_toml(text: &str) -> Result<Hypothesis, HypothesisError> {
         let spec: Spec = toml::from_str(text).map_err(|e| HypothesisError::Parse(e.to_string()))?;
-        Hypothesis::from_spec(spec)
+        if !valid_hypothesis_name(&spec.name) {
+            return Err(HypothesisError::BadName(spec.name));
+        }
+        let h = Hypothesis::from_spec(spec)?;
+        let count = h.worst_case_assignments(h.leading_jets());
+        if count > MAX_WORST_CASE_ASSIGNMENTS {
+            return Err(HypothesisError::TooManyAssignments {
+                count,
+                leading_jets: h.leading_jets(),
+                max: MAX_WORST_CASE_ASSIGNMENTS,
+            });
+        }
+        Ok(h)
+    }
+
+    /// An upper bound on the assignments one event can have with `n_jets`
+    /// leading jets: every role filled from the most objects its kind may
+    /// bring ([`MAX_LEPTONS`](crate::MAX_LEPTONS) leptons,
+    /// [`MAX_LARGE_JETS`](crate::MAX_LARGE_JETS) large jets plus "none" for
+    /// an optional one, two neutrino roots), each object used once
+    /// (`n!/(n−k)!` for `k` roles of one kind), divided by `g!` for each
+    /// interchangeable group of `g` roles; requirements (b-tags, charges) are
+    /// ignored. For warnings (e.g. above the default
+    /// [`crate::SearchBudget`]) and for the load-time limit
+    /// [`MAX_WORST_CASE_ASSIGNMENTS`].
+    ///
+    /// ```
+    /// let h = quarry_assign::presets::get("ttbar-ljets").unwrap();
+    /// // 4 jet roles from 6 jets (q1, q2 interchangeable), 1 lepton of 8,
+    /// // 2 neutrino roots: 6·5·4·3 / 2 · 8 · 2.
+    /// assert_eq!(h.worst_case_assignments(6), 2880.0);
+    /// ```
+    pub fn worst_case_assignments(&self, n_jets: usize) -> f64 {
+        let mut used = [0usize; 3];
+        let mut count = 1.0f64;
+        for r in &self.roles {
+            let (kind, pool, extra) = match r.kind {
+                RoleKind::Jet { .. } => (0, n_jets, 0),
+                RoleKind::Lepton { .. } => (1, crate::MAX_LEPTONS, 0),
+                RoleKind::LargeJet { fills, .. } => {
+                    (2, crate::MAX_LARGE_JETS, usize::from(fills.is_some()))
+                }
+                RoleKind::Neutrino { .. } => {
+                    count *= 2.0;
+                    continue;
+                }
+            };
+            count *= (pool.saturating_sub(used[kind]) + extra) as f64;
+            used[kind] += 1;
+        }
+        for g in self.interchangeable() {
+            count /= (1..=g.len()).product::<usize>() as f64;
+        }
+        count
     }
 
     /// Writes the hypothesis as TOML that [`from_toml`](Self::from_toml) reads

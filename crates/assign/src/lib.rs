@@ -155,11 +155,12 @@ mod truth;
 pub use hypothesis::{
     particle_mass, Composite, Constraint, ConstraintKind, Hypothesis, HypothesisError, LeptonPair,
     Part, Relation, Role, RoleKind, TagRule, Width, DEFAULT_LARGE_JET_OVERLAP_DR,
-    MIN_RELATIVE_SIGMA,
+    MAX_WORST_CASE_ASSIGNMENTS, MIN_RELATIVE_SIGMA,
 };
 pub use search::{
-    search_all, BtagPolicy, Evaluated, ObjectRef, RankedAssignment, SearchConfig,
-    SearchConfigError, SearchOutcome, SearchStatus, Searcher,
+    search_all, BtagPolicy, BudgetLimit, Evaluated, ObjectRef, RankedAssignment, SearchBudget,
+    SearchConfig, SearchConfigError, SearchOutcome, SearchStatus, Searcher, BUDGET_CHECK_EVERY,
+    DEFAULT_MAX_ASSIGNMENTS,
 };
 pub use truth::TruthMatch;
 

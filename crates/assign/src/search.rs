@@ -17,6 +17,8 @@ use quarry_event::{Event, Flavour};
 use quarry_lorentz::FourMomentum;
 use quarry_neutrino::{Neutrino, NeutrinoError, NeutrinoSolutions, WMassSolver};
 use rayon::prelude::*;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 
 use crate::hypothesis::{ConstraintKind, Hypothesis, Part, RoleKind, TagRule};
 use crate::{
@@ -109,6 +111,26 @@ impl Searcher {
         })
     }
 
+    /// Lets `flag` stop searches: once it is set, the search in progress
+    /// returns [`SearchStatus::Cancelled`] within [`BUDGET_CHECK_EVERY`]
+    /// assignments (about a millisecond), and so does every later search
+    /// until it is cleared. `None` removes the flag. Clones of this searcher
+    /// share it.
+    ///
+    /// ```
+    /// use quarry_assign::{presets, SearchConfig, Searcher, SearchStatus};
+    /// use std::sync::{atomic::AtomicBool, Arc};
+    /// let h = presets::get("ttbar-ljets").unwrap();
+    /// let mut s = Searcher::new(&h, SearchConfig::default()).unwrap();
+    /// let stop = Arc::new(AtomicBool::new(true));
+    /// s.set_cancel(Some(stop));
+    /// let out = s.search(&quarry_event::Event::new(1));
+    /// assert_eq!(out.status, SearchStatus::Cancelled);
+    /// ```
+    pub fn set_cancel(&mut self, flag: Option<Arc<AtomicBool>>) {
+        self.ws.cancel = flag;
+    }
+
     /// The hypothesis searched.
     pub fn hypothesis(&self) -> &Hypothesis {
         &self.hyp
@@ -162,6 +184,10 @@ impl Searcher {
         ws.thr = f64::INFINITY;
         ws.searches += 1;
         ws.evaluated = Evaluated::default();
+        ws.start_budget();
+        if let Some(stopped) = ws.stopped {
+            return stopped;
+        }
         ws.load_objects(
             event,
             self.leading,
@@ -226,6 +252,11 @@ impl Searcher {
             _ => ws.dfs(hyp, plan, &lists, 0, 0.0, Occupancy::default()),
         }
         ws.lists = lists;
+        if let Some(stopped) = ws.stopped {
+            // Not exact: report nothing rather than a wrong K best.
+            ws.best.clear();
+            return stopped;
+        }
         if !ws.best.is_empty() {
             SearchStatus::Found
         } else if let (Some(e), false) = (nu_error, nu_ok) {

@@ -372,3 +372,78 @@ fn every_preset_round_trips() {
         }
     }
 }
+
+/// Hypothesis names go unquoted into output rows and file names: a comma,
+/// quote or newline in one broke line-based merging (issue 12). Before the
+/// fix every name below loaded.
+#[test]
+fn hypothesis_names_are_restricted_to_a_safe_set() {
+    for bad in [
+        "",
+        "a,b",
+        "a\"b",
+        "two words",
+        "a\\nb",
+        "é",
+        &"x".repeat(65),
+    ] {
+        let text = edit("name = \"base\"", &format!("name = {}", toml_string(bad)));
+        assert_eq!(
+            err(&text),
+            HypothesisError::BadName(bad.replace("\\n", "\n")),
+            "{bad:?}"
+        );
+    }
+    for good in ["ttbar-ljets", "my_hyp.v2", "A1", &"x".repeat(64)] {
+        let text = edit("name = \"base\"", &format!("name = \"{good}\""));
+        assert_eq!(Hypothesis::from_toml(&text).unwrap().name(), good);
+    }
+    assert!(err(&edit("name = \"base\"", "name = \"a,b\""))
+        .to_string()
+        .contains("letters, digits, `-`, `_` or `.`"));
+}
+
+/// A TOML basic string for `s` (`\n` written as the escape).
+fn toml_string(s: &str) -> String {
+    format!("\"{}\"", s.replace('"', "\\\""))
+}
+
+/// The worst case is the count of injective fillings, `n!/(n−k)!` per
+/// object kind (the falling factorial, a textbook formula), over the
+/// interchangeable groups' `g!`. A file with 8 bare jet roles and
+/// `leading_jets = 32` (issue 12: no practical end) is refused at load.
+#[test]
+fn absurd_worst_cases_are_refused_at_load() {
+    let h = Hypothesis::from_toml(BASE).unwrap();
+    // 3 jet roles of 5 jets, q1/q2 interchangeable; 1 lepton of 8; 2 roots.
+    assert_eq!(
+        h.worst_case_assignments(5),
+        5.0 * 4.0 * 3.0 / 2.0 * 8.0 * 2.0
+    );
+    let mut text = String::from("name = \"wide\"\nleading_jets = 32\n");
+    for i in 0..8 {
+        text += &format!("\n[[role]]\nname = \"j{i}\"\nkind = \"jet\"\n");
+    }
+    text += "\n[[composite]]\nname = \"all\"\nparts = [\"j0\", \"j1\", \"j2\", \"j3\", \"j4\", \"j5\", \"j6\", \"j7\"]\n";
+    text += "\n[[constraint]]\nmass = \"all\"\ntarget = 1000.0\nwidth = 100.0\n";
+    let expected: f64 = (25..=32).map(f64::from).product(); // 32!/24! ≈ 4.2e11
+    match err(&text) {
+        HypothesisError::TooManyAssignments {
+            count,
+            leading_jets: 32,
+            ..
+        } => assert_eq!(count, expected),
+        other => panic!("{other:?}"),
+    }
+    // With 12 leading jets (12!/4! ≈ 2e7) the same roles load.
+    let h = Hypothesis::from_toml(&text.replace("leading_jets = 32", "leading_jets = 12")).unwrap();
+    assert_eq!(
+        h.worst_case_assignments(12),
+        (5..=12).map(f64::from).product::<f64>()
+    );
+    // Every preset loads, far from the limit.
+    for name in presets::names() {
+        let h = presets::get(name).unwrap();
+        assert!(h.worst_case_assignments(h.leading_jets()) < 1e9, "{name}");
+    }
+}

@@ -126,6 +126,9 @@ pub struct SearchConfig {
     /// `true` (default): branch-and-bound. `false`: visit every assignment
     /// (same result, for benchmarks and cross-checks).
     pub prune: bool,
+    /// Per-event limits on the work of one search. Default:
+    /// [`SearchBudget::default`].
+    pub budget: SearchBudget,
 }
 
 impl Default for SearchConfig {
@@ -136,6 +139,7 @@ impl Default for SearchConfig {
             btag: BtagPolicy::default(),
             neutrino: WMassSolver::default(),
             prune: true,
+            budget: SearchBudget::default(),
         }
     }
 }
@@ -353,6 +357,86 @@ pub enum SearchStatus {
     /// Enough objects, but none satisfies the requirements together (b-tags,
     /// charges, flavours, mass windows, overlaps).
     NoValidAssignment,
+    /// The search stopped at its [`SearchBudget`] before it was exact; no
+    /// assignment is reported (a partial K best would not be the K best).
+    BudgetExceeded(BudgetLimit),
+    /// The search was stopped through the flag given to
+    /// [`Searcher::set_cancel`]; no assignment is reported.
+    Cancelled,
+}
+
+/// Default of [`SearchBudget::max_assignments`]: 100 million assignments
+/// scored, a few seconds of one core. The demo events never need more than
+/// about 2,100 (measured for every preset, plain, weighted b-tags and
+/// `--max-jets 8`/`12`; `n_evaluated` column), so no normal event comes
+/// near it, while a 200-jet event under a tW-pair hypothesis with 20 leading
+/// jets (hundreds of millions) is stopped.
+pub const DEFAULT_MAX_ASSIGNMENTS: u64 = 100_000_000;
+
+/// Limits on the work of one event's search. The search checks them every
+/// [`BUDGET_CHECK_EVERY`] assignments scored (about a millisecond), so a
+/// stop lands within that much work past the limit.
+///
+/// The count is reproducible; a time limit is not (it depends on the
+/// machine and its load), so it is off by default.
+///
+/// ```
+/// use quarry_assign::{SearchBudget, DEFAULT_MAX_ASSIGNMENTS};
+/// let b = SearchBudget::default();
+/// assert_eq!(b.max_assignments, Some(DEFAULT_MAX_ASSIGNMENTS));
+/// assert_eq!(b.max_time, None);
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct SearchBudget {
+    /// Most assignments (complete and partial, as counted by [`Evaluated`])
+    /// one event may score; `None`: no limit.
+    pub max_assignments: Option<u64>,
+    /// Most wall-clock time one event's search may take; `None`: no limit.
+    pub max_time: Option<std::time::Duration>,
+}
+
+impl Default for SearchBudget {
+    fn default() -> Self {
+        SearchBudget {
+            max_assignments: Some(DEFAULT_MAX_ASSIGNMENTS),
+            max_time: None,
+        }
+    }
+}
+
+impl SearchBudget {
+    /// No limit at all.
+    pub const UNLIMITED: SearchBudget = SearchBudget {
+        max_assignments: None,
+        max_time: None,
+    };
+}
+
+/// How often (in assignments scored) the search checks its budget and its
+/// cancellation flag.
+pub const BUDGET_CHECK_EVERY: u64 = 1 << 16;
+
+/// Which limit of a [`SearchBudget`] an event reached; its `Display` is a
+/// reason for outputs ("search budget of 100000000 assignments exceeded").
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum BudgetLimit {
+    /// [`SearchBudget::max_assignments`] (the value set).
+    Assignments(u64),
+    /// [`SearchBudget::max_time`] (the value set).
+    Time(std::time::Duration),
+}
+
+impl std::fmt::Display for BudgetLimit {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            BudgetLimit::Assignments(n) => {
+                write!(f, "search budget of {n} assignments exceeded")
+            }
+            BudgetLimit::Time(t) => {
+                write!(f, "search budget of {:.3} s exceeded", t.as_secs_f64())
+            }
+        }
+    }
 }
 
 /// How much work a search did.

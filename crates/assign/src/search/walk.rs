@@ -80,6 +80,17 @@ pub(super) struct Workspace {
     pub(super) pair_v: Vec<f64>,
     /// The lepton side's compact list for the [`pair_join`] path.
     pub(super) lepton_list: pair_join::LeptonList,
+    // Budget and cancellation (see `check_limits`).
+    /// Why the current search stopped before it was exact, if it did.
+    pub(super) stopped: Option<SearchStatus>,
+    /// Work count (complete + partial) at which limits are next checked.
+    pub(super) next_check: u64,
+    pub(super) budget: SearchBudget,
+    pub(super) deadline: Option<std::time::Instant>,
+    pub(super) cancel: Option<Arc<AtomicBool>>,
+    /// [`SearchConfig::prune`]; `prune` itself is forced on to unwind a
+    /// stopped search.
+    pub(super) prune_config: bool,
 }
 
 impl Workspace {
@@ -141,6 +152,12 @@ impl Workspace {
                 0
             }),
             lepton_list: pair_join::LeptonList::for_plan(plan),
+            stopped: None,
+            next_check: 0,
+            budget: config.budget,
+            deadline: None,
+            cancel: None,
+            prune_config: config.prune,
         }
     }
 }
@@ -412,6 +429,7 @@ impl Workspace {
                 n += 1;
             }
             self.evaluated.complete += n;
+            self.tick();
             return;
         }
         let rest = self.rest_min[d + 1];
@@ -445,6 +463,7 @@ impl Workspace {
                 n += 1;
             }
             self.evaluated.partial += n as u64;
+            self.tick();
             let list = &mut self.buf[d][..n];
             for i in 1..n {
                 let mut j = i;
@@ -497,7 +516,78 @@ impl Workspace {
                 }
             }
             self.evaluated.partial += n;
+            self.tick();
         }
+    }
+
+    /// Starts the budget of a new search (see [`SearchBudget`]).
+    pub(super) fn start_budget(&mut self) {
+        self.stopped = None;
+        self.prune = self.prune_config;
+        self.next_check = BUDGET_CHECK_EVERY.min(self.budget.max_assignments.unwrap_or(u64::MAX));
+        self.deadline = self
+            .budget
+            .max_time
+            .and_then(|t| std::time::Instant::now().checked_add(t));
+        if self
+            .cancel
+            .as_ref()
+            .is_some_and(|c| c.load(Ordering::Relaxed))
+        {
+            self.stopped = Some(SearchStatus::Cancelled);
+        }
+    }
+
+    /// Checks the limits once the work count passes `next_check`: one
+    /// compare per call in the walk, the rest every [`BUDGET_CHECK_EVERY`]
+    /// assignments.
+    #[inline(always)]
+    fn tick(&mut self) {
+        if self.evaluated.complete + self.evaluated.partial >= self.next_check {
+            self.check_limits();
+        }
+    }
+
+    /// Stops the search if the budget is spent, the deadline passed or the
+    /// cancellation flag is set; otherwise schedules the next check.
+    #[cold]
+    #[inline(never)]
+    fn check_limits(&mut self) {
+        self.stop_if_spent();
+        if self.stopped.is_some() {
+            // Unwind without a test per node: with pruning on and the K-th
+            // best at −∞, `admissible` and `record` refuse everything, so
+            // each open step ends after its current candidate list.
+            self.prune = true;
+            self.thr = f64::NEG_INFINITY;
+        }
+    }
+
+    /// Sets `stopped` if a limit is reached, else schedules the next check.
+    fn stop_if_spent(&mut self) {
+        let work = self.evaluated.complete + self.evaluated.partial;
+        if let Some(max) = self.budget.max_assignments {
+            if work >= max {
+                self.stopped = Some(SearchStatus::BudgetExceeded(BudgetLimit::Assignments(max)));
+                return;
+            }
+        }
+        if self
+            .cancel
+            .as_ref()
+            .is_some_and(|c| c.load(Ordering::Relaxed))
+        {
+            self.stopped = Some(SearchStatus::Cancelled);
+            return;
+        }
+        if let (Some(deadline), Some(t)) = (self.deadline, self.budget.max_time) {
+            if std::time::Instant::now() >= deadline {
+                self.stopped = Some(SearchStatus::BudgetExceeded(BudgetLimit::Time(t)));
+                return;
+            }
+        }
+        let next = work.saturating_add(BUDGET_CHECK_EVERY);
+        self.next_check = next.min(self.budget.max_assignments.unwrap_or(u64::MAX));
     }
 
     /// Goes on from step `d` (its candidate placed, running χ² `v`): by the
