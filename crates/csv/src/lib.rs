@@ -30,4 +30,5 @@ pub use reader::{
     ErrorPolicy, EventReader, RawEvent, ReadOptions, ReadSummary, Record, DEFAULT_MAX_OBJECTS,
     ENERGY_ROUNDING_TOLERANCE, MAX_ABS_ETA, MAX_ABS_PHI, MAX_LINE_BYTES, STDIN_NAME,
 };
+pub use seen::SeenIds;
 pub use writer::{encode_rows, format_f64, EventWriter, RecordText, RowWriter, EVENT_COLUMNS};

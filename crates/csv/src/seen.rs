@@ -15,7 +15,7 @@ use std::collections::BTreeMap;
 /// belongs to at most one run, found from the last run starting at or
 /// before it.
 #[derive(Debug, Default)]
-pub(crate) struct SeenIds {
+pub struct SeenIds {
     runs: BTreeMap<u64, u64>,
     /// The run the last id went into, `(start, end)`, and where the next run
     /// starts (`u64::MAX` if none): ids that continue it need no lookup.
@@ -24,7 +24,7 @@ pub(crate) struct SeenIds {
 
 impl SeenIds {
     /// Adds `id`; `false` if it was already there.
-    pub(crate) fn insert(&mut self, id: u64) -> bool {
+    pub fn insert(&mut self, id: u64) -> bool {
         if let Some((start, end, next)) = self.hot {
             if id > end && id < next {
                 if id == end + 1 {
