@@ -208,7 +208,7 @@ pub(crate) fn truth(text: Option<&str>) -> Result<quarry_event::Truth, Fault> {
             "is null (expected a truth label)",
         ));
     };
-    quarry_event::Truth::new(t).ok_or_else(|| Fault {
+    quarry_event::Truth::new(t).map_err(|_| Fault {
         field: Field::Truth,
         value: Some(t.to_string()),
         reason: BadReason::BadTruth,
