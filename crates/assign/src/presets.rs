@@ -21,7 +21,7 @@ use crate::Hypothesis;
 pub const TTBAR_LJETS: &str = "ttbar-ljets";
 
 /// (name, one-line description, TOML text).
-const PRESETS: [(&str, &str, &str); 10] = [
+const PRESETS: [(&str, &str, &str); 13] = [
     (
         TTBAR_LJETS,
         "top pair, lepton+jets: hadronic W and both top masses (dominant background; objects feed the residual sum)",
@@ -71,6 +71,21 @@ const PRESETS: [(&str, &str, &str); 10] = [
         "thth-ljets",
         "heavy-quark pair to tH tH, H to bb, lepton+jets, resolved: W, top, H and equal-mass constraints, 4+ b-tags, up to 10 jets",
         include_str!("../presets/thth-ljets.toml"),
+    ),
+    (
+        "thth-ljets-boosted",
+        "as thth-ljets, but a large-radius jet in a Higgs mass window may fill either H",
+        include_str!("../presets/thth-ljets-boosted.toml"),
+    ),
+    (
+        "twbh-ljets",
+        "heavy-quark pair to tW bH, H to bb, lepton+jets (lepton from the top), resolved: W, top, H and equal-mass constraints, 3-4 b-tags, up to 10 jets",
+        include_str!("../presets/twbh-ljets.toml"),
+    ),
+    (
+        "tzth-ljets",
+        "heavy-quark pair to tZ tH, H to bb, Z to jets, lepton+jets (lepton from the tH side's top), resolved: W, Z, top, H and equal-mass constraints, 2+ b-tags, up to 10 jets",
+        include_str!("../presets/tzth-ljets.toml"),
     ),
 ];
 

@@ -346,7 +346,7 @@ fn interchange_and_size_errors() {
 
 #[test]
 fn every_preset_round_trips() {
-    assert_eq!(presets::names().len(), 10);
+    assert_eq!(presets::names().len(), 13);
     for name in presets::names() {
         let text = presets::toml(name).unwrap();
         let h = Hypothesis::from_toml(text).unwrap_or_else(|e| panic!("{name}: {e}"));

@@ -300,6 +300,137 @@ fn thth_partons() {
     }
 }
 
+/// Z → q q̄ (light quarks, b-tag 0) with labels `<prefix>.q`.
+fn z_to_quarks(rng: &mut Pcg64, b: &mut Builder, z: FourMomentum, prefix: &str) {
+    let (q1, q2) = decay(rng, z, 0.0, 0.0);
+    b.jet(q1, 0.0, &format!("{prefix}.q"))
+        .jet(q2, 0.0, &format!("{prefix}.q"));
+}
+
+#[test]
+fn twbh_partons() {
+    let h = presets::get("twbh-ljets").unwrap();
+    let mut rng = Pcg64::seed_from_u64(23);
+    for id in 0..10 {
+        let mut b = Builder::new(id);
+        // B → b H(→ b b̄) on the hadronic side.
+        let par = parent(&mut rng, 1300.0);
+        let (bq, higgs) = decay(&mut rng, par, BOTTOM_MASS, HIGGS_MASS);
+        b.jet(bq, 1.0, "h.b");
+        higgs_to_bb(&mut rng, &mut b, higgs, "h.H");
+        // B → t(→ b μ ν) W(→ q q̄′) on the leptonic side.
+        let par = parent(&mut rng, 1300.0);
+        let (t, w) = decay(&mut rng, par, TOP_MASS, W_MASS);
+        leptonic_top(&mut rng, &mut b, t, "l.t");
+        let (q1, q2) = decay(&mut rng, w, 0.0, 0.0);
+        b.jet(q1, 0.0, "l.W.q").jet(q2, 0.0, "l.W.q");
+        b.isr(&mut rng);
+        for policy in [BtagPolicy::default(), BtagPolicy::weighted_default()] {
+            check(
+                &h,
+                &b.e,
+                policy,
+                &[
+                    ("Q_had", 1300.0),
+                    ("Q_lep", 1300.0),
+                    ("H_had", HIGGS_MASS),
+                    ("W_had", W_MASS),
+                    ("t_lep", TOP_MASS),
+                ],
+            );
+        }
+    }
+}
+
+#[test]
+fn tzth_partons() {
+    let h = presets::get("tzth-ljets").unwrap();
+    let mut rng = Pcg64::seed_from_u64(24);
+    for id in 0..10 {
+        let mut b = Builder::new(id);
+        let par = parent(&mut rng, 1200.0);
+        let (t, z) = decay(&mut rng, par, TOP_MASS, Z_MASS);
+        hadronic_top(&mut rng, &mut b, t, "h.t");
+        z_to_quarks(&mut rng, &mut b, z, "h.Z");
+        let par = parent(&mut rng, 1200.0);
+        let (t, higgs) = decay(&mut rng, par, TOP_MASS, HIGGS_MASS);
+        leptonic_top(&mut rng, &mut b, t, "l.t");
+        higgs_to_bb(&mut rng, &mut b, higgs, "l.H");
+        b.isr(&mut rng);
+        check(
+            &h,
+            &b.e,
+            BtagPolicy::default(),
+            &[
+                ("Q_had", 1200.0),
+                ("Q_lep", 1200.0),
+                ("Z_had", Z_MASS),
+                ("H_lep", HIGGS_MASS),
+                ("t_had", TOP_MASS),
+                ("t_lep", TOP_MASS),
+            ],
+        );
+    }
+}
+
+#[test]
+fn thth_boosted_partons() {
+    let h = presets::get("thth-ljets-boosted").unwrap();
+    let mut rng = Pcg64::seed_from_u64(25);
+    let mut checked = 0;
+    for id in 0..20 {
+        let mut b = Builder::new(id);
+        let par = parent(&mut rng, 1500.0);
+        let (t, higgs) = decay(&mut rng, par, TOP_MASS, HIGGS_MASS);
+        hadronic_top(&mut rng, &mut b, t, "h.t");
+        // The hadronic side's H is one large-radius jet.
+        b.e.fat_jets.push(FatJet {
+            p4: higgs,
+            truth: Truth::new("h.H").ok(),
+            index: 0,
+        });
+        let par = parent(&mut rng, 1500.0);
+        let (t, higgs) = decay(&mut rng, par, TOP_MASS, HIGGS_MASS);
+        leptonic_top(&mut rng, &mut b, t, "l.t");
+        higgs_to_bb(&mut rng, &mut b, higgs, "l.H");
+        b.isr(&mut rng);
+        let e = b.e;
+        // The true assignment is only allowed if no jet it uses overlaps the
+        // large jet; skip the events where one does.
+        let fat = e.fat_jets[0].p4;
+        if e.jets
+            .iter()
+            .filter(|j| j.truth.unwrap().as_str() != "isr")
+            .any(|j| j.p4.delta_r(&fat) < 1.0)
+        {
+            continue;
+        }
+        check(
+            &h,
+            &e,
+            BtagPolicy::default(),
+            &[
+                ("Q_had", 1500.0),
+                ("Q_lep", 1500.0),
+                ("H_had", HIGGS_MASS),
+                ("H_lep", HIGGS_MASS),
+            ],
+        );
+        let best = Searcher::new(&h, SearchConfig::default())
+            .unwrap()
+            .search(&e)
+            .ranked[0];
+        let whole = h.role_index("H_h_large").unwrap();
+        assert!(matches!(
+            best.object(whole),
+            quarry_assign::ObjectRef::LargeJet { pos: 0, .. }
+        ));
+        assert_eq!(best.leaves_of(h.composite_index("H_had").unwrap()).count(), 1);
+        checked += 1;
+    }
+    assert!(checked >= 8, "only {checked} events checked");
+}
+
 #[test]
 fn twtw_partons() {
     let h = presets::get("twtw-ljets").unwrap();

@@ -166,6 +166,21 @@ proptest! {
     fn thth_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
         check_preset("thth-ljets", seed, policy, k, 9);
     }
+
+    #[test]
+    fn twbh_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
+        check_preset("twbh-ljets", seed, policy, k, 9);
+    }
+
+    #[test]
+    fn tzth_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
+        check_preset("tzth-ljets", seed, policy, k, 9);
+    }
+
+    #[test]
+    fn thth_boosted_matches_exhaustive(seed in any::<u64>(), policy in 0u8..2, k in 1usize..6) {
+        check_preset("thth-ljets-boosted", seed, policy, k, 9);
+    }
 }
 
 #[test]
