@@ -425,7 +425,10 @@ fn thth_boosted_partons() {
             best.object(whole),
             quarry_assign::ObjectRef::LargeJet { pos: 0, .. }
         ));
-        assert_eq!(best.leaves_of(h.composite_index("H_had").unwrap()).count(), 1);
+        assert_eq!(
+            best.leaves_of(h.composite_index("H_had").unwrap()).count(),
+            1
+        );
         checked += 1;
     }
     assert!(checked >= 8, "only {checked} events checked");
