@@ -242,8 +242,16 @@ const STOP_LIMIT: Duration = Duration::from_secs(4);
 /// One event with 200 jets in two identical back-to-back groups, searched
 /// with b-tags ignored: every assignment has the same χ², so the search
 /// cannot prune (9 s at `--max-jets 20` on the 2-core development machine
-/// when this was written; 24 jets take far longer). The signal must reach
-/// the run while it is inside that one event.
+/// when this was written; 24 jets take far longer). The search budget is
+/// raised far above what the event needs (`--max-assignments`), so the
+/// search is still running when the signal arrives 1.5 s in.
+///
+/// The signal must reach the search itself: the run then stops on its own
+/// path (the writing loop's message, "interrupted by a signal (SIGINT or
+/// SIGTERM)"), not through the signal thread's fallback, which ends the
+/// process 0.8 s after the signal with a message of its own ("… while
+/// waiting for input …"). Before the search watched the flag, only the
+/// fallback could end this run.
 #[test]
 fn a_signal_stops_a_run_inside_one_long_event() {
     use std::io::Write;
@@ -264,9 +272,10 @@ fn a_signal_stops_a_run_inside_one_long_event() {
             .args(["reco", "in.csv", "-o", "out.csv", "--no-progress", "-q"])
             .args(["-H", "twtw-ljets", "--max-jets", "24", "-j", "1"])
             .args(["--btag-mode", "ignore"])
+            .args(["--max-assignments", "1000000000000000"])
             .stdin(Stdio::null())
             .stdout(Stdio::null())
-            .stderr(Stdio::null())
+            .stderr(Stdio::piped())
             .spawn()
             .unwrap();
         let pid = child.id();
@@ -285,6 +294,16 @@ fn a_signal_stops_a_run_inside_one_long_event() {
             ready,
             STOP_LIMIT,
             &["in.csv"],
+        );
+        let mut stderr = String::new();
+        std::io::Read::read_to_string(&mut child.stderr.take().unwrap(), &mut stderr).unwrap();
+        assert!(
+            stderr.contains("quarry: error: interrupted by a signal (SIGINT or SIGTERM)\n"),
+            "{signal}: the run did not stop on its own path: {stderr}"
+        );
+        assert!(
+            !stderr.contains("waiting for input"),
+            "{signal}: the signal thread's fallback ended the run (the search did not see the signal): {stderr}"
         );
     }
 }

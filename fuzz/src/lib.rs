@@ -31,6 +31,7 @@ pub fn read_all(bytes: &[u8], policy: ErrorPolicy, max_objects: usize) -> ReadOu
     let options = ReadOptions {
         policy,
         max_objects_per_event: max_objects,
+        ..ReadOptions::default()
     };
     let mut reader =
         match EventReader::from_reader(Cursor::new(bytes.to_vec()), "fuzz.csv", options) {

@@ -160,6 +160,15 @@ pub enum OnBad {
     Stop,
 }
 
+/// What to do with input columns quarry does not know.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum UnknownColumnsArg {
+    /// Read the file, ignore the column, and warn (even under --quiet).
+    Warn,
+    /// Stop before reading any event (exit code 2).
+    Error,
+}
+
 /// How the search uses b-tag scores (see `quarry::assign::BtagPolicy`).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
 pub enum BtagMode {
@@ -252,11 +261,32 @@ pub struct RecoArgs {
     #[arg(long, value_name = "N")]
     pub max_jets: Option<usize>,
 
+    /// Search budget: most assignments scored for one event under one
+    /// hypothesis, 1 to 10^15 (default 100 000 000, far above any normal
+    /// event). An event that reaches it gets status budget_exceeded, with
+    /// the budget in the reason, and the run goes on.
+    #[arg(long, default_value_t = quarry::assign::DEFAULT_MAX_ASSIGNMENTS, value_name = "N")]
+    pub max_assignments: u64,
+
+    /// Search budget in wall time for one event under one hypothesis, in
+    /// seconds, 0.001 to 86400 (default: none). Unlike --max-assignments
+    /// it depends on the machine and its load, so outputs may differ
+    /// between runs.
+    #[arg(long, value_name = "SECONDS")]
+    pub max_search_seconds: Option<f64>,
+
+    /// Input columns quarry does not know (e.g. a misspelt `btagScore`):
+    /// `warn` (default) reads the file and warns, also under --quiet;
+    /// `error` stops with exit code 2 naming the file and the column.
+    #[arg(long, value_enum, default_value = "warn")]
+    pub unknown_columns: UnknownColumnsArg,
+
     /// Hide the progress bar (it is hidden anyway when stderr is not a terminal).
     #[arg(long)]
     pub no_progress: bool,
 
-    /// Do not print the end-of-run summary on stderr.
+    /// Do not print the end-of-run summary on stderr (reader warnings,
+    /// such as unknown columns, are still printed).
     #[arg(short, long)]
     pub quiet: bool,
 }

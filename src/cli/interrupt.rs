@@ -2,12 +2,13 @@
 //! and leaves no temporary file, whatever it is doing.
 //!
 //! The first signal sets a flag. The writing loop checks it after every
-//! event and the search checks it while it runs, so a run normally stops
-//! on its own, drops its writer (which removes the temporary file) and
-//! returns [`Failure::Interrupted`]. Some waits cannot see a flag: a reader
-//! blocked on a stalled stdin, or one event whose search does not check it.
-//! For those, the signal thread waits [`GRACE`] and then ends the process
-//! itself, after removing the temporary file. A lock keeps it from doing so
+//! event, and every worker's searches watch it ([`Interrupt::flag`] given to
+//! `Worker::set_cancel`, checked every 65 536 assignments), so a run stops
+//! on its own within milliseconds even inside one long event, drops its
+//! writer (which removes the temporary file) and returns
+//! [`Failure::Interrupted`]. One wait cannot see a flag: a reader blocked
+//! on a stalled stdin. For it, the signal thread waits [`GRACE`] and then
+//! ends the process itself, after removing the temporary file. A lock keeps it from doing so
 //! while the main thread commits the output, so a run that already renamed
 //! its output into place is never reported as interrupted.
 
@@ -111,7 +112,7 @@ impl Interrupt {
         };
         eprintln!(
             "quarry: error: interrupted by a signal (SIGINT or SIGTERM) while waiting for \
-             input or inside one event's search{not_written}"
+             input{not_written}"
         );
         std::process::exit(i32::from(Failure::INTERRUPTED));
     }

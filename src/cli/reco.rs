@@ -3,14 +3,14 @@
 
 use std::path::PathBuf;
 
-use quarry::assign::{BtagPolicy, SearchConfig, SearchConfigError};
-use quarry::csv::{ErrorPolicy, ReadOptions};
+use quarry::assign::{BtagPolicy, SearchBudget, SearchConfig, SearchConfigError};
+use quarry::csv::{ErrorPolicy, ReadOptions, UnknownColumns};
 use quarry::event::Selection;
 use quarry::output::{CsvSink, RowSink};
 use quarry::stream::{ordered_chunked_map, outcome_of, Outcome, RawEvents};
 use quarry::{Pipeline, PipelineError};
 
-use super::args::{BtagMode, OnBad, RecoArgs};
+use super::args::{BtagMode, OnBad, RecoArgs, UnknownColumnsArg};
 use super::interrupt::Interrupt;
 use super::protect::{in_range, refuse_output_among_inputs, MAX_CHUNK, MAX_THREADS};
 use super::summary::{progress_bar, Summary};
@@ -82,6 +82,7 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
             },
             k_best: args.best,
             max_jets_override: args.max_jets,
+            budget: search_budget(args)?,
             ..SearchConfig::default()
         });
     for h in &args.hypotheses {
@@ -98,6 +99,40 @@ pub fn pipeline(args: &RecoArgs) -> Result<Pipeline, Failure> {
             quarry::assign::MAX_JETS
         )),
         e => Failure::Usage(e.to_string()),
+    })
+}
+
+/// The largest `--max-assignments`: far beyond what a search can score in
+/// a day (about 10^8 per second of one core), while a typo such as an
+/// extra digit group is still caught.
+pub const MAX_ASSIGNMENTS_LIMIT: u64 = 1_000_000_000_000_000;
+
+/// The largest `--max-search-seconds`: one day.
+pub const MAX_SEARCH_SECONDS: f64 = 86_400.0;
+
+/// The search budget `--max-assignments` and `--max-search-seconds` set,
+/// checked for range.
+fn search_budget(args: &RecoArgs) -> Result<SearchBudget, Failure> {
+    if !(1..=MAX_ASSIGNMENTS_LIMIT).contains(&args.max_assignments) {
+        return Err(Failure::Usage(format!(
+            "--max-assignments {} is out of range: it must be between 1 and {MAX_ASSIGNMENTS_LIMIT}",
+            args.max_assignments
+        )));
+    }
+    let max_time = match args.max_search_seconds {
+        None => None,
+        Some(s) if (0.001..=MAX_SEARCH_SECONDS).contains(&s) => {
+            Some(std::time::Duration::from_secs_f64(s))
+        }
+        Some(s) => {
+            return Err(Failure::Usage(format!(
+                "--max-search-seconds {s} is out of range: it must be between 0.001 and {MAX_SEARCH_SECONDS}"
+            )))
+        }
+    };
+    Ok(SearchBudget {
+        max_assignments: Some(args.max_assignments),
+        max_time,
     })
 }
 
@@ -133,16 +168,24 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
         OnBad::Skip => ErrorPolicy::Skip,
         OnBad::Stop => ErrorPolicy::Stop,
     };
-    let quiet = args.quiet;
-    let records = RawEvents::open(&args.inputs, ReadOptions::default().with_policy(policy))
+    let options = ReadOptions {
+        unknown_columns: match args.unknown_columns {
+            UnknownColumnsArg::Warn => UnknownColumns::Warn,
+            UnknownColumnsArg::Error => UnknownColumns::Error,
+        },
+        ..ReadOptions::default().with_policy(policy)
+    };
+    // Reader warnings (an unknown column, a file without events) mean the
+    // input may be misread: --quiet does not hide them.
+    let records = RawEvents::open(&args.inputs, options)
         .shard(args.shard.unwrap_or_default())
-        .on_warning(move |w| {
-            if !quiet {
-                eprintln!("quarry: warning: {w}");
-            }
-        })
+        .on_warning(|w| eprintln!("quarry: warning: {w}"))
         .map(|r| r.map_err(|e| Failure::Input(e.to_string())));
     let interrupt = Interrupt::install();
+    // The first signal also stops a search in progress: each worker's
+    // searchers watch the flag (the status of that event is `cancelled`,
+    // never written, because the run then stops).
+    let cancel = interrupt.flag();
     let mut read = 0u64;
     let mut writer = CsvSink::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
     interrupt.watch_output(
@@ -156,7 +199,11 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
         ordered_chunked_map(
             records,
             args.chunk_size,
-            || pipeline.worker(),
+            || {
+                let mut worker = pipeline.worker();
+                worker.set_cancel(Some(std::sync::Arc::clone(&cancel)));
+                worker
+            },
             |worker, item| outcome_of::<CsvSink>(worker, policy, item),
             |outcome| {
                 if interrupt.is_set() {

@@ -39,6 +39,9 @@ fn options(args: &RecoArgs, threads: usize) -> (BTreeMap<String, Value>, BTreeMa
         mistag_rate,
         best,
         max_jets,
+        max_assignments,
+        max_search_seconds,
+        unknown_columns,
         no_progress: _,
         quiet: _,
     } = args;
@@ -57,6 +60,9 @@ fn options(args: &RecoArgs, threads: usize) -> (BTreeMap<String, Value>, BTreeMa
         ("best".to_string(), json!(best)),
         ("max_jets".to_string(), json!(max_jets)),
         ("on_bad".to_string(), name_of(on_bad)),
+        ("max_assignments".to_string(), json!(max_assignments)),
+        ("max_search_seconds".to_string(), json!(max_search_seconds)),
+        ("unknown_columns".to_string(), name_of(unknown_columns)),
     ]);
     let run = BTreeMap::from([
         ("threads".to_string(), json!(threads)),

@@ -1,6 +1,7 @@
 //! [`Worker`]: the per-thread state of a [`Pipeline`] and the order in which
 //! the stages run for one event.
 
+use std::sync::atomic::AtomicBool;
 use std::sync::Arc;
 
 use quarry_assign::{RankedAssignment, SearchOutcome, Searcher};
@@ -27,6 +28,32 @@ impl<'p> Worker<'p> {
     /// The pipeline this worker runs.
     pub fn pipeline(&self) -> &'p Pipeline {
         self.pipeline
+    }
+
+    /// Lets `flag` stop this worker's searches (every hypothesis's and the
+    /// residual reference's): once it is set, a search in progress ends
+    /// within about a millisecond with status [`Status::Cancelled`], and so
+    /// does every later one until it is cleared. `None` removes it. See
+    /// `quarry_assign::Searcher::set_cancel`.
+    ///
+    /// ```
+    /// use std::sync::{atomic::AtomicBool, Arc};
+    /// let pipeline = quarry::Pipeline::builder().preset("ttbar-ljets").build().unwrap();
+    /// let mut worker = pipeline.worker();
+    /// worker.set_cancel(Some(Arc::new(AtomicBool::new(true))));
+    /// let mut event = quarry::event::Event::new(3);
+    /// let p4 = quarry::lorentz::FourMomentum::from_pt_eta_phi_m;
+    /// for (pt, phi, btag) in [(120.0, 0.1, 0.9), (90.0, 1.2, 0.1), (70.0, 2.4, 0.1), (60.0, -2.0, 0.9)] {
+    ///     event.add_jet(quarry::event::Jet::new(p4(pt, 0.3, phi, 8.0), btag));
+    /// }
+    /// event.add_lepton(quarry::event::Lepton::muon(p4(50.0, -0.2, -1.0, 0.106), -1));
+    /// event.met = quarry::event::Met::from_pt_phi(40.0, 0.5);
+    /// assert_eq!(worker.reconstruct(event)[0].status, quarry::Status::Cancelled);
+    /// ```
+    pub fn set_cancel(&mut self, flag: Option<Arc<AtomicBool>>) {
+        for s in self.searchers.iter_mut().chain(self.residual.as_mut()) {
+            s.set_cancel(flag.clone());
+        }
     }
 
     /// Selects the event's objects, computes its variables, and

@@ -27,8 +27,9 @@ pub use error::{BadEvent, BadReason, CsvError, FieldError};
 pub use output::AtomicOutput;
 pub use quarry_event::Event;
 pub use reader::{
-    ErrorPolicy, EventReader, RawEvent, ReadOptions, ReadSummary, Record, DEFAULT_MAX_OBJECTS,
-    ENERGY_ROUNDING_TOLERANCE, MAX_ABS_ETA, MAX_ABS_PHI, MAX_LINE_BYTES, STDIN_NAME,
+    ErrorPolicy, EventReader, RawEvent, ReadOptions, ReadSummary, Record, UnknownColumns,
+    DEFAULT_MAX_OBJECTS, ENERGY_ROUNDING_TOLERANCE, MAX_ABS_ETA, MAX_ABS_PHI, MAX_LINE_BYTES,
+    STDIN_NAME,
 };
 pub use seen::SeenIds;
 pub use writer::{encode_rows, format_f64, EventWriter, RecordText, RowWriter, EVENT_COLUMNS};

@@ -55,14 +55,30 @@ pub struct ReadOptions {
     /// An event with more rows than this becomes a [`BadEvent`] with reason
     /// [`BadReason::TooManyObjects`]; bounds the memory one event can take.
     pub max_objects_per_event: usize,
+    /// What to do with header columns the format does not define.
+    pub unknown_columns: UnknownColumns,
+}
+
+/// What the reader does with header columns the format does not define
+/// (a misspelt `btagScore` would otherwise silently leave every jet
+/// untagged).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum UnknownColumns {
+    /// Ignore them and report them once in [`EventReader::warnings`].
+    #[default]
+    Warn,
+    /// Refuse the file: opening it fails with a [`CsvError::Header`] that
+    /// names the file, the header line and the columns.
+    Error,
 }
 
 impl Default for ReadOptions {
-    /// [`ErrorPolicy::Stop`], [`DEFAULT_MAX_OBJECTS`].
+    /// [`ErrorPolicy::Stop`], [`DEFAULT_MAX_OBJECTS`], [`UnknownColumns::Warn`].
     fn default() -> Self {
         ReadOptions {
             policy: ErrorPolicy::Stop,
             max_objects_per_event: DEFAULT_MAX_OBJECTS,
+            unknown_columns: UnknownColumns::Warn,
         }
     }
 }
@@ -528,14 +544,26 @@ impl EventReader {
             })?;
         let mut warnings = Vec::new();
         if !unknown.is_empty() {
-            warnings.push(format!(
-                "{name}:{line}: ignoring unknown column(s) {}",
-                unknown
-                    .iter()
-                    .map(|c| format!("'{c}'"))
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            ));
+            let listed = unknown
+                .iter()
+                .map(|c| format!("'{c}'"))
+                .collect::<Vec<_>>()
+                .join(", ");
+            match options.unknown_columns {
+                UnknownColumns::Warn => warnings.push(format!(
+                    "{name}:{line}: ignoring unknown column(s) {listed}"
+                )),
+                UnknownColumns::Error => {
+                    return Err(CsvError::Header {
+                        file: name,
+                        line,
+                        message: format!(
+                            "unknown column(s) {listed} (known columns: {})",
+                            KNOWN_COLUMNS.join(", ")
+                        ),
+                    })
+                }
+            }
         }
         let parser = Arc::new(Parser {
             cols: cols.clone(),

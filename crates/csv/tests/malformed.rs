@@ -329,6 +329,7 @@ fn too_many_objects() {
     let opts = ReadOptions {
         policy: ErrorPolicy::Skip,
         max_objects_per_event: 4,
+        ..ReadOptions::default()
     };
     let r = EventReader::from_reader(
         std::io::Cursor::new(format!("{HEADER}\n{body}").into_bytes()),

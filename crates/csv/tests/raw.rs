@@ -65,6 +65,7 @@ fn both_policies(text: &[u8]) {
     let small = ReadOptions {
         policy: ErrorPolicy::Skip,
         max_objects_per_event: 2,
+        ..ReadOptions::default()
     };
     check(text, small);
 }
