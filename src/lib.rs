@@ -38,6 +38,7 @@
 pub struct ReadmeDoctests;
 
 pub use quarry_assign as assign;
+pub use quarry_calib as calib;
 pub use quarry_csv as csv;
 pub use quarry_eval as eval;
 pub use quarry_event as event;

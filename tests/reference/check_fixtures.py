@@ -36,6 +36,13 @@ ATOL = 1e-9
 # fit_iminuit.json: the Rust test asks for the minimum within 1e-4 relative,
 # parameters within 1e-3 of MINUIT's error and errors within 5 %.
 OVERRIDES = {
+    # calib_reference.json: curve_fit (MINPACK) stops within its ftol/xtol of
+    # 1.5e-8; the Rust test asks for agreement within 1e-3 of each error.
+    "calib_reference.json": {
+        "params": (1e-7, 0.0),
+        "errors": (1e-7, 0.0),
+        "chi2": (1e-7, 0.0),
+    },
     "fit_iminuit.json": {
         "fval": (1e-8, 0.0),
         "errors": (2e-2, 0.0),
