@@ -63,6 +63,7 @@
 mod binned;
 pub mod binomial;
 mod core;
+pub mod file;
 mod jets;
 mod objects;
 mod quadrature;

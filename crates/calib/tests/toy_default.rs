@@ -108,3 +108,69 @@ fn default_detector_is_recovered() {
     assert!((b.value - 0.70).abs() < 4.0 * b.half_width());
     assert!((l.value - 0.01).abs() < 4.0 * l.half_width());
 }
+
+/// The calibration file built from the default toy detector reads back
+/// identically from its TOML text, and reading rejects unphysical values
+/// naming the entry and field.
+#[test]
+fn calibration_file_round_trip_and_validation() {
+    use quarry_calib::file::{CalibrationFile, Defaults, MassPeakEntry, Results};
+    let m = samples();
+    let binning = Binning::default();
+    let jets = calibrate_jets(&m.jets, &binning).unwrap();
+    let leptons = calibrate_leptons(&m.leptons, &binning).unwrap();
+    let model = ResolutionModel::default();
+    let masses: Vec<f64> = (0..2000)
+        .map(|i| 80.0 + 8.0 * (((i * 7919) % 2000) as f64 / 2000.0 - 0.5))
+        .collect();
+    let results = Results {
+        samples: vec!["toy ttbar, 30000 events".into()],
+        jets: &jets,
+        leptons: Ok(&leptons),
+        met: Err("no MET in this sample".into()),
+        btag: calibrate_btag(&m.jets, 0.5).map_err(|e| e.to_string()),
+        mass_peaks: vec![MassPeakEntry::measure("W", quarry_pdg::W_MASS, &masses).unwrap()],
+    };
+    let defaults = Defaults {
+        electron: (0.01, 0.0001),
+        muon: (0.015, 0.0001),
+        met: (10.0, 0.5),
+        btag: (0.5, 0.7, 0.01),
+    };
+    let file = CalibrationFile::from_results(
+        &results,
+        |_, eta| {
+            let b = model.jet_bin(eta);
+            (b.stochastic, b.noise, b.constant)
+        },
+        &defaults,
+    );
+    // The MET item could not be measured: defaults, marked.
+    assert!(file.met.status.starts_with("default: no MET"));
+    assert_eq!((file.met.floor, file.met.sqrt_sum_pt), (10.0, 0.5));
+    assert_eq!(file.jet.len(), 6);
+    assert!(file.jet.iter().all(|j| j.status == "measured"));
+    let central = file.jet_entry("light", 0.3).unwrap();
+    assert!((central.stochastic - 0.9).abs() < 4.0 * central.stochastic_error);
+    let text = file.to_toml();
+    assert_eq!(CalibrationFile::from_toml(&text).unwrap(), file);
+
+    let broken = text.replacen("stochastic = ", "stochastic = -", 1);
+    let err = CalibrationFile::from_toml(&broken).unwrap_err().to_string();
+    assert!(
+        err.contains("jet entry 0") && err.contains("stochastic"),
+        "{err}"
+    );
+    let nan = text.replacen("floor = 10.0", "floor = nan", 1);
+    assert!(CalibrationFile::from_toml(&nan)
+        .unwrap_err()
+        .to_string()
+        .contains("met"));
+    let dead = text.replacen("response_at_100_gev = ", "response_at_100_gev = -", 1);
+    assert!(CalibrationFile::from_toml(&dead)
+        .unwrap_err()
+        .to_string()
+        .contains("response"));
+    let future = text.replacen("format = 1", "format = 2", 1);
+    assert!(CalibrationFile::from_toml(&future).is_err());
+}
