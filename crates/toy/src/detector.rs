@@ -6,7 +6,7 @@ use rand::Rng;
 use rand_distr::StandardNormal;
 use rand_pcg::Pcg64Mcg;
 
-use crate::config::{Acceptance, BTagModel, ToyConfig};
+use crate::config::{Acceptance, BTagModel, Distortion, ToyConfig};
 use crate::partons::{PartonKind, PartonRecord};
 use quarry_resolution::ResolutionModel;
 
@@ -19,6 +19,7 @@ pub(crate) struct Detector {
     resolution: ResolutionModel,
     k_b: f64,
     k_light: f64,
+    distortion: Distortion,
 }
 
 /// A jet being built from one or more partons, with its direction cached
@@ -66,6 +67,7 @@ impl Detector {
             resolution: cfg.resolution.clone(),
             k_b: b.exponent(b.b_efficiency),
             k_light: b.exponent(b.mistag_rate),
+            distortion: cfg.distortion,
         }
     }
 
@@ -81,14 +83,48 @@ impl Detector {
             .jet_energy_floor
             .max(m2.sqrt() * (1.0 + 1e-9) + 1e-9);
         let e_new = (e + sigma * z).max(floor);
-        let p_old = p.p();
-        if p_old == 0.0 {
-            return FourMomentum::new(0.0, 0.0, 0.0, e_new);
-        }
-        let k = (e_new * e_new - m2).max(0.0).sqrt() / p_old;
-        FourMomentum::new(p.px() * k, p.py() * k, p.pz() * k, e_new)
+        with_energy(p, e_new, m2)
     }
 
+    /// The jet after the configured distortion: energy times the response
+    /// at the unsmeared energy `e_true`, and for b jets, with probability
+    /// `b_jet_tail_fraction`, times a uniform tail factor; direction and
+    /// mass kept, truncated below like the smearing. Draws random numbers
+    /// only for b jets when a tail is configured.
+    fn distort(
+        &self,
+        rng: &mut Pcg64Mcg,
+        jet: &FourMomentum,
+        e_true: f64,
+        is_b: bool,
+    ) -> FourMomentum {
+        let d = &self.distortion;
+        let mut scale = d.jet_response(e_true);
+        if is_b && d.b_jet_tail_fraction > 0.0 && rng.random::<f64>() < d.b_jet_tail_fraction {
+            scale *= d.b_jet_tail_min_scale
+                + (d.b_jet_tail_max_scale - d.b_jet_tail_min_scale) * rng.random::<f64>();
+        }
+        let m2 = jet.m2().max(0.0);
+        let floor = self
+            .acceptance
+            .jet_energy_floor
+            .max(m2.sqrt() * (1.0 + 1e-9) + 1e-9);
+        with_energy(jet, (jet.e() * scale).max(floor), m2)
+    }
+}
+
+/// `p` with energy `e_new` at fixed direction and mass² `m2`.
+#[inline]
+fn with_energy(p: &FourMomentum, e_new: f64, m2: f64) -> FourMomentum {
+    let p_old = p.p();
+    if p_old == 0.0 {
+        return FourMomentum::new(0.0, 0.0, 0.0, e_new);
+    }
+    let k = (e_new * e_new - m2).max(0.0).sqrt() / p_old;
+    FourMomentum::new(p.px() * k, p.py() * k, p.pz() * k, e_new)
+}
+
+impl Detector {
     pub(crate) fn reconstruct(
         &self,
         rng: &mut Pcg64Mcg,
@@ -168,6 +204,11 @@ impl Detector {
                 self.k_light
             };
             let btag = rng.random::<f64>().powf(k);
+            let jet_p4 = if self.distortion.is_none() {
+                jet_p4
+            } else {
+                self.distort(rng, &jet_p4, pr.p4.e(), lead.kind == PartonKind::Bottom)
+            };
             // Direction is kept: the proto-jet's η is the jet's.
             let pt = jet_p4.pt();
             if pt > acc.jet_pt_min && pr.eta.abs() < acc.jet_abs_eta_max {

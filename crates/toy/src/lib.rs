@@ -86,6 +86,9 @@
 //! scales with the energy); the outermost qualifies (a contained top hides
 //! its W); after smearing it must still have pt > 200 GeV and |η| < 2.0.
 //! Objects failing acceptance are dropped, so some events lack objects.
+//! For calibration studies a [`Distortion`] (off by default) multiplies
+//! each smeared jet energy by a response r(E_true) ≠ 1 and gives a fraction
+//! of b jets a low-side tail; the fit does not model either.
 //! Objects are sorted by decreasing pt.
 //!
 //! For mass-closure studies, [`signal_events`] gives `n` events of one
@@ -128,8 +131,8 @@ mod kinematics;
 mod partons;
 
 pub use config::{
-    Acceptance, BTagModel, Branching, DecayMode, HeavyQuark, Partner, Process, Production,
-    Radiation, ToyConfig, ToyError,
+    Acceptance, BTagModel, Branching, DecayMode, Distortion, HeavyQuark, Partner, Process,
+    Production, Radiation, ToyConfig, ToyError,
 };
 pub use kinematics::{
     breit_wigner_mass, decay_at_rest, kallen, two_body_decay, two_body_momentum,
