@@ -51,7 +51,9 @@ use std::fmt;
 use std::path::PathBuf;
 use std::str::FromStr;
 
-use quarry_csv::{BadReason, CsvError, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record};
+use quarry_csv::{
+    BadReason, CsvError, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, SeenIds,
+};
 use rayon::prelude::*;
 
 use crate::output::{Row, RowSink};
@@ -169,6 +171,10 @@ pub struct RawEvents<'a> {
     next_ordinal: u64,
     warned: usize,
     on_warning: Box<dyn FnMut(&str) + Send + 'a>,
+    /// Ids of the inputs finished so far, handed to the next reader.
+    seen: SeenIds,
+    /// Whether a reader was opened (the next one continues its stream).
+    opened_any: bool,
 }
 
 impl<'a> RawEvents<'a> {
@@ -189,6 +195,8 @@ impl<'a> RawEvents<'a> {
             next_ordinal: 0,
             warned: 0,
             on_warning: Box::new(|w| eprintln!("quarry: warning: {w}")),
+            seen: SeenIds::default(),
+            opened_any: false,
         }
     }
 
@@ -221,7 +229,13 @@ impl Iterator for RawEvents<'_> {
         loop {
             if self.current.is_none() {
                 match self.readers.next()? {
-                    Ok(r) => {
+                    Ok(mut r) => {
+                        if self.opened_any {
+                            // The inputs are one stream: an id of an
+                            // earlier input may not reappear.
+                            r.continue_stream(std::mem::take(&mut self.seen));
+                        }
+                        self.opened_any = true;
                         self.current = Some(r);
                         self.warned = 0;
                         self.flush_warnings();
@@ -232,7 +246,9 @@ impl Iterator for RawEvents<'_> {
             let reader = self.current.as_mut()?;
             match reader.next_raw() {
                 None => {
+                    let seen = reader.take_seen_ids();
                     self.flush_warnings();
+                    self.seen = seen;
                     self.current = None;
                 }
                 Some(Err(e)) => return Some(Err(e)),

@@ -46,6 +46,19 @@ pub enum CsvError {
         /// What is wrong.
         message: String,
     },
+    /// A carriage return (CR) that does not end a line: the file (or its
+    /// rest) uses CR-only line ends, which the reader does not read.
+    #[error(
+        "{file}:{line}: a carriage return (CR) inside a line: the file uses CR-only line ends, \
+         which quarry does not read (its rows would run together); convert them to LF, \
+         e.g. tr '\\r' '\\n' < IN > OUT"
+    )]
+    LineEnds {
+        /// File name.
+        file: String,
+        /// Line (counted by LF) holding the CR.
+        line: u64,
+    },
     /// Writing an output failed.
     #[error("{file}: write error: {source}")]
     Write {

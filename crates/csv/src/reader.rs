@@ -468,6 +468,8 @@ pub struct EventReader {
     row: Row,
     current: Option<RawEvent>,
     seen: SeenIds,
+    /// Whether `seen` holds ids of earlier inputs of the same stream.
+    seen_earlier_inputs: bool,
     summary: ReadSummary,
     warnings: Vec<String>,
     fatal: Option<CsvError>,
@@ -515,6 +517,13 @@ impl EventReader {
             match lines.next_line() {
                 Ok(None) => return Err(CsvError::Empty { file: name }),
                 Ok(Some(false)) => {}
+                Ok(Some(true)) if memchr::memchr(b'\r', &lines.buf).is_some() => {
+                    // A CR-only file reads as one long line.
+                    return Err(CsvError::LineEnds {
+                        file: name,
+                        line: lines.line_no,
+                    });
+                }
                 Ok(Some(true)) => {
                     return Err(CsvError::Header {
                         file: name,
@@ -526,6 +535,12 @@ impl EventReader {
             }
             if is_blank_or_comment(&lines.buf) {
                 continue;
+            }
+            if memchr::memchr(b'\r', &lines.buf).is_some() {
+                return Err(CsvError::LineEnds {
+                    file: name,
+                    line: lines.line_no,
+                });
             }
             if let Err(message) = header.split(&lines.buf) {
                 return Err(CsvError::Header {
@@ -580,6 +595,7 @@ impl EventReader {
             row: Row::default(),
             current: None,
             seen: SeenIds::default(),
+            seen_earlier_inputs: false,
             summary: ReadSummary::default(),
             warnings,
             fatal: None,
@@ -608,6 +624,22 @@ impl EventReader {
         &self.summary
     }
 
+    /// Continues a stream of several inputs: `seen` holds the ids of the
+    /// inputs read before this one (from [`take_seen_ids`](Self::take_seen_ids)
+    /// of the previous reader), so an id that reappears here is a
+    /// `split-event` like one repeated within a file. Call before reading.
+    pub fn continue_stream(&mut self, seen: SeenIds) {
+        self.seen = seen;
+        self.seen_earlier_inputs = true;
+    }
+
+    /// The ids seen so far (this input's and those given to
+    /// [`continue_stream`](Self::continue_stream)), for the next input of
+    /// the stream; leaves this reader's set empty.
+    pub fn take_seen_ids(&mut self) -> SeenIds {
+        std::mem::take(&mut self.seen)
+    }
+
     /// Counts a parsed record and applies the error policy.
     fn account(&mut self, record: &Record) {
         match record {
@@ -634,12 +666,18 @@ impl EventReader {
         match &key {
             Key::Id(id) => {
                 if !self.seen.insert(*id) {
+                    let message = if self.seen_earlier_inputs {
+                        "appeared earlier in this file or an earlier input: the inputs are one \
+                         stream, in which the rows of one event must be contiguous"
+                    } else {
+                        "appeared earlier in the file: rows of one event must be contiguous"
+                    };
                     error = Some(self.error(
                         line,
                         Some(self.cols.event),
                         Some(raw_id.clone()),
                         BadReason::SplitEvent,
-                        "appeared earlier in the file: rows of one event must be contiguous".into(),
+                        message.into(),
                     ));
                 }
             }
@@ -763,7 +801,25 @@ impl EventReader {
             let buf = &self.lines.buf;
             // Only a line with quotes (or cut short) needs the full split
             // here; otherwise the event field is found by counting commas.
-            let (field, syntax) = if too_long || memchr::memchr(b'"', buf).is_some() {
+            let special = memchr::memchr2(b'"', b'\r', buf);
+            if special.is_some_and(|i| memchr::memchr(b'\r', &buf[i..]).is_some()) {
+                // A CR that does not end the line: CR line ends from here
+                // on, which would join many rows into one. Stop rather than
+                // lose the events in it.
+                let fatal = CsvError::LineEnds {
+                    file: self.name.clone(),
+                    line,
+                };
+                self.summary.fatal = Some(fatal.to_string());
+                self.fatal = Some(fatal);
+                self.done = true;
+                if let Some(mut b) = self.current.take() {
+                    b.pending.push(Pending::Truncated { line });
+                    return Some(Ok(self.yield_raw(b)));
+                }
+                continue;
+            }
+            let (field, syntax) = if too_long || special.is_some() {
                 let syntax = self.row.split(buf).err().map(str::to_string);
                 let syntax = if too_long {
                     Some(format!("line longer than {MAX_LINE_BYTES} bytes"))
