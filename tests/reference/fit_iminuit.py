@@ -179,9 +179,12 @@ def make_chi2(objects, rel, met, cov):
     return chi2, composite_m2
 
 
-def main():
+def worked_events():
+    """The toy events, deterministic: (objects, relative sigmas, MET, MET covariance, pz start).
+
+    Shared with fit_hard_scipy.py, which checks the hard-constraint fit on the same events.
+    """
     rng = np.random.default_rng(SEED)
-    events = []
     for _ in range(EVENTS):
         partons, nu = generate(rng)
         objects = []
@@ -205,6 +208,13 @@ def main():
         c = MET_CORRELATION
         met = [nu[0] + s * z1, nu[1] + s * (c * z1 + math.sqrt(1.0 - c * c) * z2)]
         pz0 = w_pz_start(objects[4], met)
+        yield objects, rel, met, cov, pz0
+
+
+def main():
+    events = []
+    for objects, rel, met, cov, pz0 in worked_events():
+        s = math.sqrt(cov[0])
         chi2, composite_m2 = make_chi2(objects, rel, met, cov)
         start = [1.0] * 5 + [met[0], met[1], pz0, 0.0]
         m_had = signed_sqrt(composite_m2(np.array(start), 2))
