@@ -6,6 +6,7 @@
 //!   constraint terms), once per [`Searcher`];
 //! - [`prepare`]: per event, the objects entering the search and each step's
 //!   admissible candidates;
+//! - [`slot`]: the typed indices into the search's fixed-size arrays;
 //! - [`walk`]: the depth-first walk, its bounds and the K-best list;
 //! - [`join`]: the per-event lists that complete the small side of an
 //!   equal-mass constraint, and [`pair_join`], the bW-pair shape's dedicated
@@ -29,11 +30,13 @@ mod join;
 mod pair_join;
 mod plan;
 mod prepare;
+mod slot;
 mod types;
 mod walk;
 
 use join::*;
 use plan::*;
+use slot::*;
 pub use types::*;
 use walk::*;
 
@@ -144,7 +147,7 @@ impl Searcher {
     /// Role indices in the order the search fills them (constraints that
     /// close early first). Exposed for diagnostics.
     pub fn fill_order(&self) -> Vec<usize> {
-        self.plan.steps.iter().map(|s| s.role).collect()
+        self.plan.steps.iter().map(|s| s.role.get()).collect()
     }
 
     /// Searches one event for the best assignments. Never panics; problems
@@ -218,7 +221,11 @@ impl Searcher {
         let mut nu_ok = false;
         if let Some(lrole) = plan.nu_lepton {
             ws.nu = [None; MAX_LEPTONS];
-            let d = plan.steps.iter().position(|s| s.role == lrole).unwrap_or(0);
+            let d = plan
+                .steps
+                .iter()
+                .position(|s| s.role.get() == lrole)
+                .unwrap_or(0);
             let mut m = ws.cand_mask[d];
             while m != 0 {
                 let l = m.trailing_zeros() as usize;

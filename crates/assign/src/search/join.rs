@@ -22,12 +22,12 @@ pub(super) struct Join {
     pub(super) depth: usize,
     /// The equal-mass constraint.
     pub(super) eq: ConOp,
-    pub(super) closed: usize,
-    pub(super) open: usize,
+    pub(super) closed: CompSlot,
+    pub(super) open: CompSlot,
     /// The steps after `depth` (all of them), in fill order, and their
     /// roles.
     pub(super) open_steps: Vec<usize>,
-    pub(super) open_roles: Vec<usize>,
+    pub(super) open_roles: Vec<RoleSlot>,
     /// Additions to the running χ² per filling, in the search's order: per
     /// open step its b-tag term, then its constraints' terms.
     pub(super) n_incr: usize,
@@ -131,7 +131,7 @@ impl Plan {
             let mut eq_slot = usize::MAX;
             for &d in &open_steps {
                 let st = &steps[d];
-                if open_mask & (1 << st.role) == 0
+                if open_mask & (1 << st.role.get()) == 0
                     || st.skip_if.is_some()
                     || !st.pair_checks.is_empty()
                 {
@@ -146,11 +146,11 @@ impl Plan {
                 }
                 n_incr += 1;
                 for op in &con_ops[st.cons.0..st.cons.1] {
-                    if op.k == k {
+                    if op.k.get() == k {
                         eq_slot = n_incr;
                     } else {
                         let inside = |c: usize| comps[c].leaf_mask & !open_mask == 0;
-                        if op.only_closest || !inside(op.a) || !inside(op.b) {
+                        if op.only_closest || !inside(op.a.get()) || !inside(op.b.get()) {
                             continue 'constraints;
                         }
                     }
@@ -160,6 +160,7 @@ impl Plan {
             if eq_slot == usize::MAX {
                 continue;
             }
+            let (closed, open) = (CompSlot::new(closed), CompSlot::new(open));
             let mut eq = ConOp::new(k, c);
             eq.a = closed;
             eq.b = open;
@@ -215,7 +216,7 @@ impl Workspace {
         occ: Occupancy,
     ) -> bool {
         let la = &plan.joins[i];
-        let m_closed = self.comp_m[la.closed % MAX_COMPOSITES];
+        let m_closed = self.comp_m[la.closed];
         if !(m_closed >= 0.0 && m_closed.is_finite()) {
             return false;
         }
@@ -290,7 +291,7 @@ impl Workspace {
             if x <= self.thr {
                 let objs = &t.objs[id];
                 for (s, &r) in la.open_roles.iter().enumerate() {
-                    self.choice[r % MAX_ROLES] = objs[s];
+                    self.choice[r] = objs[s];
                 }
                 self.record(x, w.n_roles);
             }
@@ -387,7 +388,7 @@ impl Workspace {
             return;
         }
         let Some(&d) = la.open_steps.get(s) else {
-            let mass = self.comp_m[la.open % MAX_COMPOSITES];
+            let mass = self.comp_m[la.open];
             // A NaN mass gives a NaN χ², never recorded; leaving it out
             // keeps the list ordered for the outward walk.
             if mass.is_nan() {
@@ -413,17 +414,17 @@ impl Workspace {
         let ops = &plan.comp_ops[step.comps.0..step.comps.1];
         let cons = &plan.con_ops[step.cons.0..step.cons.1];
         self.prepare_prefixes(ops);
-        let role = step.role % MAX_ROLES;
+        let role = step.role;
         let (base, kind) = self.pool(step);
-        let row = self.pen_row[d] % 3;
+        let row = self.pen_row[d];
         while mask != 0 {
             let o = mask.trailing_zeros() as usize;
             mask &= mask - 1;
             self.choice[role] = o as u8;
             objs[s] = o as u8;
-            self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+            self.close_comps(ops, role, self.obj_p4[base.offset(o)]);
             let mut n = n_incr;
-            incr[n] = self.pen[row][o % MAX_JETS];
+            incr[n] = self.pen[row][JetSlot::new(o)];
             n += 1;
             for op in cons {
                 incr[n] = if op.k == la.eq.k {

@@ -26,11 +26,11 @@ use super::*;
 pub(super) struct PairJetJoin {
     /// Roles at steps 0 and 1 (the interchangeable pair) and 2 (the extra
     /// jet).
-    roles: [usize; 3],
+    roles: [RoleSlot; 3],
     /// The composite closed at step 1 (sum of the pair) and at step 2 (pair
     /// composite + extra jet: the join's closed side).
-    pair: usize,
-    closed: usize,
+    pair: CompSlot,
+    closed: CompSlot,
     /// The join at step 2 (index into [`Plan::joins`]) and, if its open side
     /// is a [`LeptonSide`], that shape: its list is then this path's compact
     /// [`LeptonList`].
@@ -81,7 +81,7 @@ impl PairJetJoin {
             }
         }
         let roles = [steps[0].role, steps[1].role, steps[2].role];
-        if steps[1].sym_role != Some(roles[0])
+        if steps[1].sym_role != Some(roles[0].get())
             || steps[2].sym_role.is_some()
             || steps[0].comps.0 != steps[0].comps.1
             || steps[0].cons.0 != steps[0].cons.1
@@ -91,15 +91,15 @@ impl PairJetJoin {
         let single = |s: &Step| (s.comps.1 == s.comps.0 + 1).then(|| plan.comp_ops[s.comps.0]);
         let (op1, op2) = (single(&steps[1])?, single(&steps[2])?);
         let (pair, closed) = (op1.dest, op2.dest);
-        let sources = |op: &CompOp| (op.n, op.n_inv, op.src[0] as usize, op.src[1] as usize);
-        if sources(&op1) != (2, 1, roles[0], roles[1])
-            || sources(&op2) != (2, 1, MAX_ROLES + pair, roles[2])
+        let sources = |op: &CompOp| (op.n, op.n_inv, op.src[0], op.src[1]);
+        if sources(&op1) != (2, 1, roles[0].p4(), roles[1].p4())
+            || sources(&op2) != (2, 1, pair.p4(), roles[2].p4())
             || join.depth != 2
             || join.closed != closed
         {
             return None;
         }
-        let plain_on = |s: &Step, c: usize| {
+        let plain_on = |s: &Step, c: CompSlot| {
             plan.con_ops[s.cons.0..s.cons.1]
                 .iter()
                 .all(|op| op.shape == ConShape::Mass && op.a == c && !op.only_closest)
@@ -132,11 +132,7 @@ impl Workspace {
         plan: &Plan,
         lists: &[JoinList],
     ) {
-        let rows = [
-            self.pen_row[0] % 3,
-            self.pen_row[1] % 3,
-            self.pen_row[2] % 3,
-        ];
+        let rows = [self.pen_row[0], self.pen_row[1], self.pen_row[2]];
         let cons1 = &plan.con_ops[plan.steps[1].cons.0..plan.steps[1].cons.1];
         // Step 0 then step 1, as `dfs` computes them: the running χ² after
         // step 0 is 0 + its b-tag term (no constraint closes there).
@@ -148,19 +144,19 @@ impl Workspace {
         while m0 != 0 {
             let a = m0.trailing_zeros() as usize;
             m0 &= m0 - 1;
-            let v0 = 0.0 + self.pen[rows[0]][a % MAX_JETS];
+            let v0 = 0.0 + self.pen[rows[0]][JetSlot::new(a)];
             if v0.is_nan() {
                 continue;
             }
-            let pa = self.obj_p4[(JET_BASE + a) % OBJ_SLOTS];
+            let pa = self.obj_p4[ObjSlot::new(JET_BASE + a)];
             let mut m1 =
                 self.cand_mask[1] & !(1u64 << a) & u64::MAX.checked_shl(a as u32 + 1).unwrap_or(0);
             while m1 != 0 {
                 let b = m1.trailing_zeros() as usize;
                 m1 &= m1 - 1;
-                let p = pa + self.obj_p4[(JET_BASE + b) % OBJ_SLOTS];
+                let p = pa + self.obj_p4[ObjSlot::new(JET_BASE + b)];
                 let m = fast_mass(&p);
-                let v = plain_terms(cons1, m, v0 + self.pen[rows[1]][b % MAX_JETS]);
+                let v = plain_terms(cons1, m, v0 + self.pen[rows[1]][JetSlot::new(b)]);
                 if v.is_finite() {
                     pair_v.push(v);
                     pairs.push(ScoredPair {
@@ -242,33 +238,33 @@ impl Workspace {
         walk: Option<&LeptonWalk>,
     ) {
         let [r0, r1, r2] = k.roles;
-        let row2 = self.pen_row[2] % 3;
+        let row2 = self.pen_row[2];
         let cons2 = &plan.con_ops[plan.steps[2].cons.0..plan.steps[2].cons.1];
         let rest3 = self.rest_min[3];
         let (a, b) = (sp.a as usize, sp.b as usize);
-        self.choice[r0 % MAX_ROLES] = sp.a;
-        self.choice[r1 % MAX_ROLES] = sp.b;
-        self.p4s[r0 % SLOTS] = self.obj_p4[(JET_BASE + a) % OBJ_SLOTS];
-        self.p4s[r1 % SLOTS] = self.obj_p4[(JET_BASE + b) % OBJ_SLOTS];
-        self.p4s[(MAX_ROLES + k.pair) % SLOTS] = sp.p;
-        self.comp_m[k.pair % MAX_COMPOSITES] = sp.m;
+        self.choice[r0] = sp.a;
+        self.choice[r1] = sp.b;
+        self.p4s[r0.p4()] = self.obj_p4[ObjSlot::new(JET_BASE + a)];
+        self.p4s[r1.p4()] = self.obj_p4[ObjSlot::new(JET_BASE + b)];
+        self.p4s[k.pair.p4()] = sp.p;
+        self.comp_m[k.pair] = sp.m;
         let used = (1u64 << a) | (1u64 << b);
         let mut m2 = self.cand_mask[2] & !used;
         self.evaluated.partial += u64::from(m2.count_ones());
         while m2 != 0 {
             let c = m2.trailing_zeros() as usize;
             m2 &= m2 - 1;
-            let pc = self.obj_p4[(JET_BASE + c) % OBJ_SLOTS];
+            let pc = self.obj_p4[ObjSlot::new(JET_BASE + c)];
             let p = sp.p + pc;
             let m = fast_mass(&p);
-            let v = plain_terms(cons2, m, sp.v + self.pen[row2][c % MAX_JETS]);
+            let v = plain_terms(cons2, m, sp.v + self.pen[row2][JetSlot::new(c)]);
             if !self.admissible(v, rest3) {
                 continue;
             }
-            self.choice[r2 % MAX_ROLES] = c as u8;
-            self.p4s[r2 % SLOTS] = pc;
-            self.p4s[(MAX_ROLES + k.closed) % SLOTS] = p;
-            self.comp_m[k.closed % MAX_COMPOSITES] = m;
+            self.choice[r2] = c as u8;
+            self.p4s[r2.p4()] = pc;
+            self.p4s[k.closed.p4()] = p;
+            self.comp_m[k.closed] = m;
             let mut occ = Occupancy::default();
             occ.used[0] = used | (1u64 << c);
             match walk {
@@ -326,7 +322,7 @@ impl Workspace {
         complete: &mut u64,
     ) -> bool {
         // The closed side holds jets only: only the jet can clash.
-        if (1u64 << (e.jet % 64)) & at.used_jets != 0 {
+        if (1u64 << JetSlot::new(e.jet as usize).get()) & at.used_jets != 0 {
             return true;
         }
         let t_eq = w.la.eq.term_of(at.m_closed, e.mass);
@@ -341,12 +337,12 @@ impl Workspace {
             // (then the neutrino step's terms), jet (then the jet step's
             // terms, the equal-mass one now known).
             let mut x = at.v;
-            x += self.pen[w.rows[0]][l % MAX_JETS];
-            x += self.pen[w.rows[1]][r % MAX_JETS];
+            x += self.pen[w.rows[0]][JetSlot::new(l)];
+            x += self.pen[w.rows[1]][JetSlot::new(r)];
             for &t in list.w_terms_of(l, r) {
                 x += t;
             }
-            x += self.pen[w.rows[2]][j % MAX_JETS];
+            x += self.pen[w.rows[2]][JetSlot::new(j)];
             for op in w.cons_j {
                 x += if op.k == w.la.eq.k {
                     t_eq
@@ -356,9 +352,9 @@ impl Workspace {
             }
             *complete += 1;
             if x <= self.thr {
-                self.choice[w.roles[0] % MAX_ROLES] = e.lep;
-                self.choice[w.roles[1] % MAX_ROLES] = e.root;
-                self.choice[w.roles[2] % MAX_ROLES] = e.jet;
+                self.choice[w.roles[0]] = e.lep;
+                self.choice[w.roles[1]] = e.root;
+                self.choice[w.roles[2]] = e.jet;
                 self.record(x, w.n_roles);
             }
         }
@@ -369,8 +365,8 @@ impl Workspace {
 /// What walks over the compact list need, the same for a whole event.
 struct LeptonWalk<'a> {
     la: &'a Join,
-    roles: [usize; 3],
-    rows: [usize; 3],
+    roles: [RoleSlot; 3],
+    rows: [PenRow; 3],
     cons_j: &'a [ConOp],
     n_roles: usize,
 }
@@ -450,7 +446,7 @@ fn plain_terms(cons: &[ConOp], m: f64, mut v: f64) -> f64 {
 #[derive(Clone, Copy, Debug)]
 pub(super) struct LeptonSide {
     /// Depths of the lepton, neutrino and jet steps.
-    depths: [usize; 3],
+    depths: [DepthSlot; 3],
 }
 
 impl LeptonSide {
@@ -464,7 +460,10 @@ impl LeptonSide {
         let [dl, dn, dj] = <[usize; 3]>::try_from(la.open_steps.as_slice()).ok()?;
         let (sl, sn, sj) = (&plan.steps[dl], &plan.steps[dn], &plan.steps[dj]);
         if !matches!(sl.kind, StepKind::Lepton(..))
-            || sn.kind != (StepKind::Neutrino { lepton: sl.role })
+            || sn.kind
+                != (StepKind::Neutrino {
+                    lepton: sl.role.get(),
+                })
             || !matches!(sj.kind, StepKind::Jet(_))
             || sl.sym_role.is_some()
             || sj.sym_role.is_some()
@@ -477,15 +476,15 @@ impl LeptonSide {
         }
         let (opn, opj) = (plan.comp_ops[sn.comps.0], plan.comp_ops[sj.comps.0]);
         let w = opn.dest;
-        let sources = |op: &CompOp| (op.n, op.n_inv, op.src[0] as usize, op.src[1] as usize);
-        if sources(&opn) != (2, 1, sl.role, sn.role)
-            || sources(&opj) != (2, 1, MAX_ROLES + w, sj.role)
+        let sources = |op: &CompOp| (op.n, op.n_inv, op.src[0], op.src[1]);
+        if sources(&opn) != (2, 1, sl.role.p4(), sn.role.p4())
+            || sources(&opj) != (2, 1, w.p4(), sj.role.p4())
             || opj.dest != la.open
         {
             return None;
         }
         let plain_on =
-            |op: &ConOp, c: usize| op.shape == ConShape::Mass && op.a == c && !op.only_closest;
+            |op: &ConOp, c: CompSlot| op.shape == ConShape::Mass && op.a == c && !op.only_closest;
         let cons_n = &plan.con_ops[sn.cons.0..sn.cons.1];
         let cons_j = &plan.con_ops[sj.cons.0..sj.cons.1];
         if !cons_n.iter().all(|op| plain_on(op, w))
@@ -497,22 +496,22 @@ impl LeptonSide {
             return None;
         }
         Some(LeptonSide {
-            depths: [dl, dn, dj],
+            depths: [dl, dn, dj].map(DepthSlot::new),
         })
     }
 }
 
 impl LeptonSide {
-    fn roles(&self, plan: &Plan) -> [usize; 3] {
-        self.depths.map(|d| plan.steps[d].role)
+    fn roles(&self, plan: &Plan) -> [RoleSlot; 3] {
+        self.depths.map(|d| plan.steps[d.get()].role)
     }
 
-    fn rows(&self, ws: &Workspace) -> [usize; 3] {
-        self.depths.map(|d| ws.pen_row[d % MAX_ROLES] % 3)
+    fn rows(&self, ws: &Workspace) -> [PenRow; 3] {
+        self.depths.map(|d| ws.pen_row[d])
     }
 
     fn cons_j<'a>(&self, plan: &'a Plan) -> &'a [ConOp] {
-        let s = &plan.steps[self.depths[2]];
+        let s = &plan.steps[self.depths[2].get()];
         &plan.con_ops[s.cons.0..s.cons.1]
     }
 }
@@ -533,25 +532,26 @@ impl Workspace {
         mut on_filling: impl FnMut(usize, usize, usize, f64, f64, &[f64]),
     ) {
         let [dl, dn, dj] = side.depths;
+        let dn = dn.get();
         let cons_n = &plan.con_ops[plan.steps[dn].cons.0..plan.steps[dn].cons.1];
         let cons_j = side.cons_j(plan);
         let rows = side.rows(self);
         // Three b-tag terms and every constraint at most once.
         let mut incr = [0.0; 3 + MAX_CONSTRAINTS];
-        let mut ml = self.cand_mask[dl % MAX_ROLES];
-        let mj_all = self.cand_mask[dj % MAX_ROLES];
+        let mut ml = self.cand_mask[dl];
+        let mj_all = self.cand_mask[dj];
         while ml != 0 {
             let l = ml.trailing_zeros() as usize;
             ml &= ml - 1;
             let Some(n_roots) = self.nu.get(l).and_then(Option::as_ref).map(|s| s.len()) else {
                 continue;
             };
-            let pl = self.obj_p4[(LEP_BASE + l) % OBJ_SLOTS];
-            incr[0] = self.pen[rows[0]][l % MAX_JETS];
+            let pl = self.obj_p4[ObjSlot::new(LEP_BASE + l)];
+            incr[0] = self.pen[rows[0]][JetSlot::new(l)];
             for r in 0..n_roots {
-                let w = pl + self.obj_p4[(NU_BASE + 2 * l + r) % OBJ_SLOTS];
+                let w = pl + self.obj_p4[ObjSlot::new(NU_BASE + 2 * l + r)];
                 let mw = fast_mass(&w);
-                incr[1] = self.pen[rows[1]][r % MAX_JETS];
+                incr[1] = self.pen[rows[1]][JetSlot::new(r)];
                 let mut n = 2;
                 for op in cons_n {
                     incr[n % incr.len()] = op.term_of(mw, mw);
@@ -566,14 +566,14 @@ impl Workspace {
                 while mj != 0 {
                     let j = mj.trailing_zeros() as usize;
                     mj &= mj - 1;
-                    let q = w + self.obj_p4[(JET_BASE + j) % OBJ_SLOTS];
+                    let q = w + self.obj_p4[ObjSlot::new(JET_BASE + j)];
                     let mass = fast_mass(&q);
                     // As in `fill_join`: a NaN mass is never recorded.
                     if mass.is_nan() {
                         continue;
                     }
                     let mut m = n;
-                    let pen = self.pen[rows[2]][j % MAX_JETS];
+                    let pen = self.pen[rows[2]][JetSlot::new(j)];
                     incr[m % incr.len()] = pen;
                     let mut rest = head + pen;
                     m += 1;
@@ -599,7 +599,7 @@ impl Workspace {
     pub(super) fn build_lepton_list(&mut self, side: &LeptonSide, plan: &Plan, la: &Join) -> f64 {
         let mut list = std::mem::take(&mut self.lepton_list);
         list.entries.clear();
-        let dn = side.depths[1];
+        let dn = side.depths[1].get();
         list.n_w = plan.steps[dn].cons.1 - plan.steps[dn].cons.0;
         list.w_terms.clear();
         list.w_terms.resize(MAX_LEPTONS * 2 * list.n_w, 0.0);
@@ -646,9 +646,9 @@ impl Workspace {
         // At most 8 leptons × 2 roots × 32 jets entries: never more than
         // the list may hold, so no entry needs the overflow check, and the
         // room is made once.
-        let most = self.cand_mask[side.depths[0] % MAX_ROLES].count_ones() as usize
+        let most = self.cand_mask[side.depths[0]].count_ones() as usize
             * 2
-            * self.cand_mask[side.depths[2] % MAX_ROLES].count_ones() as usize;
+            * self.cand_mask[side.depths[2]].count_ones() as usize;
         t.entries.reserve(most);
         t.objs.reserve(most);
         t.incr.reserve(most * la.n_incr.max(FIXED_COPY));

@@ -14,7 +14,7 @@ pub(super) enum StepKind {
 
 #[derive(Clone, Debug)]
 pub(super) struct Step {
-    pub(super) role: usize,
+    pub(super) role: RoleSlot,
     pub(super) kind: StepKind,
     /// Earlier member of this role's interchangeable group: the object here
     /// must come after that one's (canonical order, each set once).
@@ -46,10 +46,10 @@ pub(super) const SLOTS: usize = MAX_ROLES + MAX_COMPOSITES;
 /// ones the χ² was computed from.
 #[derive(Clone, Copy, Debug)]
 pub(super) struct CompOp {
-    pub(super) dest: usize,
+    pub(super) dest: CompSlot,
     pub(super) n: usize,
     pub(super) n_inv: usize,
-    pub(super) src: [u8; SLOTS],
+    pub(super) src: [P4Slot; SLOTS],
 }
 
 /// Object slots in `Workspace::obj_p4`: jets, leptons, large jets, then two
@@ -77,10 +77,10 @@ pub(super) enum ConShape {
 #[derive(Clone, Copy, Debug)]
 pub(super) struct ConOp {
     /// Constraint index.
-    pub(super) k: usize,
+    pub(super) k: ConSlot,
     pub(super) shape: ConShape,
-    pub(super) a: usize,
-    pub(super) b: usize,
+    pub(super) a: CompSlot,
+    pub(super) b: CompSlot,
     pub(super) target: f64,
     /// σ in GeV, or the relative width for `EqualRelative`.
     pub(super) width: f64,
@@ -105,10 +105,10 @@ impl ConOp {
             }
         };
         ConOp {
-            k,
+            k: ConSlot::new(k),
             shape,
-            a,
-            b,
+            a: CompSlot::new(a),
+            b: CompSlot::new(b),
             target,
             width,
             only_closest: c.only_closest,
@@ -118,7 +118,7 @@ impl ConOp {
     /// The χ² term given the composite masses.
     #[inline(always)]
     pub(super) fn term(&self, m: &[f64; MAX_COMPOSITES]) -> f64 {
-        self.term_of(m[self.a % MAX_COMPOSITES], m[self.b % MAX_COMPOSITES])
+        self.term_of(m[self.a], m[self.b])
     }
 
     /// The χ² term for masses `ma` (composite `a`) and `mb` (composite `b`;
@@ -482,7 +482,7 @@ impl Plan {
                 }
             }
             steps.push(Step {
-                role: r,
+                role: RoleSlot::new(r),
                 kind,
                 sym_role,
                 skip_if,
@@ -539,13 +539,13 @@ impl CompOp {
         }
         all.sort_by_key(|&(varying, _)| varying);
         let mut op = CompOp {
-            dest: c,
+            dest: CompSlot::new(c),
             n: all.len(),
             n_inv: all.iter().filter(|(varying, _)| !varying).count(),
-            src: [0; SLOTS],
+            src: [P4Slot::new(0); SLOTS],
         };
         for (i, &(_, slot)) in all.iter().enumerate() {
-            op.src[i] = slot as u8;
+            op.src[i] = P4Slot::new(slot);
         }
         op
     }
@@ -628,10 +628,10 @@ mod tests {
             (ConShape::EqualAbsolute, 25.0),
         ] {
             let op = ConOp {
-                k: 0,
+                k: ConSlot::new(0),
                 shape,
-                a: 0,
-                b: 1,
+                a: CompSlot::new(0),
+                b: CompSlot::new(1),
                 target: 0.0,
                 width,
                 only_closest: false,

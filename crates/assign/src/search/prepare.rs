@@ -92,7 +92,7 @@ impl Workspace {
         // Per b-tag row (any, b, light): the jets admitted and their
         // smallest b-tag term, found in one pass over the jets.
         let mut jets_of = [0u64; 3];
-        let mut pen_min = [f64::INFINITY; 3];
+        let mut pen_min = [f64::INFINITY; PEN_ROWS];
         for j in 0..self.n_jets {
             for (row, tag) in [TagRule::Any, TagRule::B, TagRule::Light]
                 .into_iter()
@@ -136,7 +136,7 @@ impl Workspace {
                 }
             }
             self.cand_mask[d] = mask;
-            self.pen_row[d] = row;
+            self.pen_row[d] = PenRow::new(row);
         }
         // Admissible lower bound on the b-tag terms still to come.
         let nsteps = plan.steps.len();
@@ -145,7 +145,7 @@ impl Workspace {
             let step = &plan.steps[d];
             let mut min_here = f64::INFINITY;
             if step.skip_if.is_none() && matches!(step.kind, StepKind::Jet(_)) {
-                min_here = pen_min[self.pen_row[d] % 3];
+                min_here = pen_min[self.pen_row[d]];
             }
             let min_here = if min_here.is_finite() { min_here } else { 0.0 };
             self.rest_min[d] = self.rest_min[d + 1] + min_here;

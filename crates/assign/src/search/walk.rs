@@ -33,8 +33,9 @@ pub(super) struct Workspace {
     pub(super) jet_index: [u32; MAX_JETS],
     pub(super) jet_score: [f64; MAX_JETS],
     /// b-tag χ² term per jet: row 0 for `any` roles (zeros), 1 for `b`
-    /// roles, 2 for `light` roles.
-    pub(super) pen: [[f64; MAX_JETS]; 3],
+    /// roles, 2 for `light` roles; row 3 is unused (zeros), there so that a
+    /// [`PenRow`] reduces by a mask.
+    pub(super) pen: [[f64; MAX_JETS]; PEN_ROWS],
     pub(super) n_leps: usize,
     pub(super) lep_flav: [Flavour; MAX_LEPTONS],
     pub(super) lep_charge: [i8; MAX_LEPTONS],
@@ -48,7 +49,7 @@ pub(super) struct Workspace {
     /// Per depth: the objects its role's requirements admit in this event
     /// (bit = object index), and the b-tag row of `pen`.
     pub(super) cand_mask: [u64; MAX_ROLES],
-    pub(super) pen_row: [usize; MAX_ROLES],
+    pub(super) pen_row: [PenRow; MAX_ROLES],
     /// Per depth: candidates scored for best-first descent.
     pub(super) buf: [[(f64, u8); MAX_CANDS]; MAX_ROLES],
     pub(super) rest_min: [f64; MAX_ROLES + 1],
@@ -103,7 +104,7 @@ impl Workspace {
             jet_pos: [0; MAX_JETS],
             jet_index: [0; MAX_JETS],
             jet_score: [0.0; MAX_JETS],
-            pen: [[0.0; MAX_JETS]; 3],
+            pen: [[0.0; MAX_JETS]; PEN_ROWS],
             n_leps: 0,
             lep_flav: [Flavour::Electron; MAX_LEPTONS],
             lep_charge: [0; MAX_LEPTONS],
@@ -115,7 +116,7 @@ impl Workspace {
             large_overlap: [0; MAX_LARGE_JETS],
             nu: [None; MAX_LEPTONS],
             cand_mask: [0; MAX_ROLES],
-            pen_row: [0; MAX_ROLES],
+            pen_row: [PenRow::new(0); MAX_ROLES],
             buf: [[(0.0, 0); MAX_CANDS]; MAX_ROLES],
             rest_min: [0.0; MAX_ROLES + 1],
             closest_dev: [0.0; MAX_CONSTRAINTS],
@@ -255,15 +256,18 @@ impl Workspace {
     /// Where the step's objects live in `obj_p4` (object `o` at `base + o`)
     /// and which row of [`Occupancy::used`] they occupy.
     #[inline(always)]
-    pub(super) fn pool(&self, step: &Step) -> (usize, usize) {
+    pub(super) fn pool(&self, step: &Step) -> (ObjSlot, usize) {
         match step.kind {
-            StepKind::Jet(_) => (JET_BASE, 0),
-            StepKind::Lepton(..) => (LEP_BASE, 1),
-            StepKind::LargeJet { .. } => (LARGE_BASE, 2),
-            StepKind::Neutrino { lepton } => (
-                NU_BASE + 2 * (self.choice[lepton] as usize % MAX_LEPTONS),
-                3,
-            ),
+            StepKind::Jet(_) => (ObjSlot::new(JET_BASE), 0),
+            StepKind::Lepton(..) => (ObjSlot::new(LEP_BASE), 1),
+            StepKind::LargeJet { .. } => (ObjSlot::new(LARGE_BASE), 2),
+            StepKind::Neutrino { lepton } => {
+                // The lepton may still be unplaced (`NONE`) when the step has
+                // no candidate and the pool goes unused; reduced into range
+                // rather than made a slot, which must be in range.
+                let l = self.choice[lepton] as usize % MAX_LEPTONS;
+                (ObjSlot::new(NU_BASE + 2 * l), 3)
+            }
         }
     }
 
@@ -274,11 +278,11 @@ impl Workspace {
         for op in ops {
             if op.n_inv > 0 {
                 let inv = &op.src[..op.n_inv];
-                let mut p = self.p4s[inv[0] as usize % SLOTS];
+                let mut p = self.p4s[inv[0]];
                 for &s in &inv[1..] {
-                    p += self.p4s[s as usize % SLOTS];
+                    p += self.p4s[s];
                 }
-                self.prefix[op.dest % MAX_COMPOSITES] = p;
+                self.prefix[op.dest] = p;
             }
         }
     }
@@ -286,19 +290,19 @@ impl Workspace {
     /// Puts four-vector `p` in `role` and completes the step's composites
     /// (prefixes prepared).
     #[inline(always)]
-    pub(super) fn close_comps(&mut self, ops: &[CompOp], role: usize, p: FourMomentum) {
-        self.p4s[role % SLOTS] = p;
+    pub(super) fn close_comps(&mut self, ops: &[CompOp], role: RoleSlot, p: FourMomentum) {
+        self.p4s[role.p4()] = p;
         for op in ops {
-            let dest = op.dest % MAX_COMPOSITES;
+            let dest = op.dest;
             let (mut p, from) = if op.n_inv > 0 {
                 (self.prefix[dest], op.n_inv)
             } else {
-                (self.p4s[op.src[0] as usize % SLOTS], 1)
+                (self.p4s[op.src[0]], 1)
             };
             for &s in &op.src[from.min(op.n)..op.n] {
-                p += self.p4s[s as usize % SLOTS];
+                p += self.p4s[s];
             }
-            self.p4s[MAX_ROLES + dest] = p;
+            self.p4s[dest.p4()] = p;
             self.comp_m[dest] = fast_mass(&p);
         }
     }
@@ -309,8 +313,8 @@ impl Workspace {
     pub(super) fn eval_cons(&self, cons: &[ConOp], mut v: f64) -> f64 {
         for op in cons {
             if op.only_closest && op.shape == ConShape::Mass {
-                let dev = (self.comp_m[op.a % MAX_COMPOSITES] - op.target).abs();
-                let lim = self.closest_dev[op.k % MAX_CONSTRAINTS];
+                let dev = (self.comp_m[op.a] - op.target).abs();
+                let lim = self.closest_dev[op.k];
                 if dev.is_nan() || dev > lim + 1e-9 * lim.max(1.0) {
                     return f64::INFINITY;
                 }
@@ -405,9 +409,9 @@ impl Workspace {
         let ops = &plan.comp_ops[step.comps.0..step.comps.1];
         let cons = &plan.con_ops[step.cons.0..step.cons.1];
         self.prepare_prefixes(ops);
-        let role = step.role % MAX_ROLES;
+        let role = step.role;
         let (base, kind) = self.pool(step);
-        let row = self.pen_row[d] % 3;
+        let row = self.pen_row[d];
         if d + 1 == plan.steps.len() {
             let n_roles = hyp.roles().len();
             let mut n = 0u64;
@@ -423,8 +427,8 @@ impl Workspace {
                 let o = m.trailing_zeros() as usize;
                 m &= m - 1;
                 self.choice[role] = o as u8;
-                self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
-                let v = self.eval_cons(cons, partial + self.pen[row][o % MAX_JETS]);
+                self.close_comps(ops, role, self.obj_p4[base.offset(o)]);
+                let v = self.eval_cons(cons, partial + self.pen[row][JetSlot::new(o)]);
                 self.record(v, n_roles);
                 n += 1;
             }
@@ -437,7 +441,7 @@ impl Workspace {
             let mut occ = occ;
             occ.used[kind] |= 1 << o;
             if kind == 2 {
-                occ.blocked |= ws.large_overlap[o % MAX_LARGE_JETS];
+                occ.blocked |= ws.large_overlap[LargeSlot::new(o)];
             }
             occ
         };
@@ -455,9 +459,9 @@ impl Workspace {
             while m != 0 {
                 let o = m.trailing_zeros() as usize;
                 m &= m - 1;
-                self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+                self.close_comps(ops, role, self.obj_p4[base.offset(o)]);
                 self.buf[d][n] = (
-                    self.eval_cons(cons, partial + self.pen[row][o % MAX_JETS]),
+                    self.eval_cons(cons, partial + self.pen[row][JetSlot::new(o)]),
                     o as u8,
                 );
                 n += 1;
@@ -486,7 +490,7 @@ impl Workspace {
                     self.descend(hyp, plan, lists, d, v, occ);
                 } else {
                     let o = obj as usize;
-                    self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
+                    self.close_comps(ops, role, self.obj_p4[base.offset(o)]);
                     let occ = placed(self, o);
                     self.descend(hyp, plan, lists, d, v, occ);
                 }
@@ -507,8 +511,8 @@ impl Workspace {
                 let o = m.trailing_zeros() as usize;
                 m &= m - 1;
                 self.choice[role] = o as u8;
-                self.close_comps(ops, role, self.obj_p4[(base + o) % OBJ_SLOTS]);
-                let v = self.eval_cons(cons, partial + self.pen[row][o % MAX_JETS]);
+                self.close_comps(ops, role, self.obj_p4[base.offset(o)]);
+                let v = self.eval_cons(cons, partial + self.pen[row][JetSlot::new(o)]);
                 n += 1;
                 if self.admissible(v, rest) {
                     let occ = placed(self, o);
@@ -615,7 +619,7 @@ impl Workspace {
     pub(super) fn build_into(&mut self, plan: &Plan, leaf: &Leaf, out: &mut RankedAssignment) {
         let mut btag_chi2 = 0.0;
         for step in &plan.steps {
-            let role = step.role % MAX_ROLES;
+            let role = step.role;
             let obj = leaf.choice[role];
             self.choice[role] = obj;
             let o = obj as usize;
@@ -625,23 +629,23 @@ impl Workspace {
                 out.objects[role] = match step.kind {
                     StepKind::Jet(tag) => {
                         btag_chi2 += match tag {
-                            TagRule::B => self.pen[1][o % MAX_JETS],
-                            TagRule::Light => self.pen[2][o % MAX_JETS],
+                            TagRule::B => self.pen[1][JetSlot::new(o)],
+                            TagRule::Light => self.pen[2][JetSlot::new(o)],
                             TagRule::Any => 0.0,
                         };
                         ObjectRef::Jet {
-                            pos: self.jet_pos[o % MAX_JETS],
-                            index: self.jet_index[o % MAX_JETS],
+                            pos: self.jet_pos[JetSlot::new(o)],
+                            index: self.jet_index[JetSlot::new(o)],
                         }
                     }
                     StepKind::Lepton(..) => ObjectRef::Lepton {
-                        flavour: self.lep_flav[o % MAX_LEPTONS],
-                        pos: self.lep_pos[o % MAX_LEPTONS],
-                        index: self.lep_index[o % MAX_LEPTONS],
+                        flavour: self.lep_flav[LepSlot::new(o)],
+                        pos: self.lep_pos[LepSlot::new(o)],
+                        index: self.lep_index[LepSlot::new(o)],
                     },
                     StepKind::LargeJet { .. } => ObjectRef::LargeJet {
-                        pos: self.large_pos[o % MAX_LARGE_JETS],
-                        index: self.large_index[o % MAX_LARGE_JETS],
+                        pos: self.large_pos[LargeSlot::new(o)],
+                        index: self.large_index[LargeSlot::new(o)],
                     },
                     StepKind::Neutrino { lepton } => {
                         out.neutrino = self
@@ -652,25 +656,25 @@ impl Workspace {
                         ObjectRef::Neutrino { root: obj }
                     }
                 };
-                self.obj_p4[(self.pool(step).0 + o) % OBJ_SLOTS]
+                self.obj_p4[self.pool(step).0.offset(o)]
             };
-            self.p4s[role % SLOTS] = p;
+            self.p4s[role.p4()] = p;
         }
         // Every role is placed: each composite is the left fold of its
         // sources in `CompOp` order, as the search summed it (its prefix,
         // then the rest), and `comp_ops` lists sources before their users.
         for op in &plan.comp_ops {
             let src = &op.src[..op.n.clamp(1, SLOTS)];
-            let mut p = self.p4s[src[0] as usize % SLOTS];
+            let mut p = self.p4s[src[0]];
             for &s in &src[1..] {
-                p += self.p4s[s as usize % SLOTS];
+                p += self.p4s[s];
             }
-            let dest = op.dest % MAX_COMPOSITES;
-            self.p4s[MAX_ROLES + dest] = p;
+            let dest = op.dest;
+            self.p4s[dest.p4()] = p;
             self.comp_m[dest] = fast_mass(&p);
         }
         for op in &plan.con_ops {
-            out.terms[op.k % MAX_CONSTRAINTS] = op.term(&self.comp_m);
+            out.terms[op.k] = op.term(&self.comp_m);
         }
         let n = out.n_composites as usize;
         out.composite_p4[..n].copy_from_slice(&self.p4s[MAX_ROLES..MAX_ROLES + n]);
