@@ -42,8 +42,15 @@ pub(super) const SLOTS: usize = MAX_ROLES + MAX_COMPOSITES;
 /// completes the composite, then those set at that step (its role, and
 /// composites completed at the same step). The fixed part is summed once per
 /// visit of the step (`Workspace::prefix`), and the replay that reports an
-/// assignment sums in the same order, so reported masses are bit-for-bit the
-/// ones the χ² was computed from.
+/// assignment (`Workspace::build_into`) sums in the same order, so the
+/// reported composite four-vectors and constraint terms are bit for bit the
+/// ones the χ² was computed from. The reported *masses* are not:
+/// `RankedAssignment::composite_mass` takes `FourMomentum::m` of that
+/// four-vector (two square roots, precise for nearly massless sums), while
+/// the search uses `fast_mass` (one root); for the W, top and heavier
+/// systems searched they agree to about 1e-13
+/// relatively (see `fast_mass`). Reporting `fast_mass` instead would change
+/// output bytes.
 #[derive(Clone, Copy, Debug)]
 pub(super) struct CompOp {
     pub(super) dest: CompSlot,
