@@ -45,6 +45,7 @@ pub use quarry_event as event;
 pub use quarry_fit as fit;
 pub use quarry_lorentz as lorentz;
 pub use quarry_neutrino as neutrino;
+pub use quarry_parquet as parquet;
 pub use quarry_pdg as pdg;
 pub use quarry_resolution as resolution;
 pub use quarry_toy as toy;

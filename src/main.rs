@@ -1,9 +1,10 @@
 //! The `quarry` command line: a thin layer over [`quarry::Pipeline`] that
-//! streams CSV events in, and result rows out.
+//! streams CSV or Parquet events in, and result rows out.
 //!
 //! Subcommands: `reco` (reconstruct), `presets list|show` (built-in
 //! hypotheses), `generate` (toy events), `eval` (evaluation on simulation), `merge`
-//! (shard outputs of a job array). Exit codes are listed in
+//! (shard outputs of a job array), `columns list|show|template` (column maps
+//! for Parquet inputs). Exit codes are listed in
 //! `quarry reco --help` and docs/cli.md.
 
 use std::process::ExitCode;
@@ -44,6 +45,7 @@ fn main() -> ExitCode {
         Command::Generate(args) => cli::generate::run(&args),
         Command::Eval(args) => cli::eval::run(&args),
         Command::Merge(args) => cli::merge::run(&args),
+        Command::Columns(cmd) => cli::columns::run(&cmd),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -48,11 +48,14 @@
 //! ```
 
 use std::fmt;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::str::FromStr;
 
 use quarry_csv::{
-    BadReason, CsvError, ErrorPolicy, EventReader, RawEvent, ReadOptions, Record, SeenIds,
+    BadReason, CsvError, ErrorPolicy, Event, EventReader, RawEvent, ReadOptions, Record, SeenIds,
+};
+use quarry_parquet::{
+    is_parquet, ColumnMap, Layout, ParquetError, ParquetReader, ReadOptions as ParquetOptions,
 };
 use rayon::prelude::*;
 
@@ -141,17 +144,125 @@ impl FromStr for Shard {
     }
 }
 
-/// One event of a stream, grouped from its rows but not parsed (parsing
-/// runs on the workers).
+/// One event as the reading side hands it to the workers.
+// Not boxed: a CSV event would pay one more allocation on the reading
+// thread, which is the CSV path's bottleneck.
+#[allow(clippy::large_enum_variant)]
+#[derive(Debug)]
+pub enum RawInput {
+    /// A CSV event's rows, grouped but not parsed (parsing runs on the
+    /// workers).
+    Csv(RawEvent),
+    /// A Parquet event, already decoded on the Parquet reader's row-group
+    /// threads: a good event or a bad one naming file, row group, row and
+    /// column.
+    Parquet(quarry_parquet::Record),
+}
+
+/// One event of a stream, numbered and marked with its shard.
 #[derive(Debug)]
 pub struct NumberedEvent {
     /// 0-based position in the whole input stream (all files, every event,
     /// before sharding): the output's `ordinal` column.
     pub ordinal: u64,
-    /// The event's rows.
-    pub raw: RawEvent,
+    /// The event as read.
+    pub raw: RawInput,
     /// Whether the event belongs to the stream's [`Shard`].
     pub kept: bool,
+}
+
+/// One opened input: quarry's long-form CSV or a Parquet file.
+// One per input file: its size does not matter.
+#[allow(clippy::large_enum_variant)]
+pub enum InputReader {
+    /// A CSV input (plain, gzip or standard input).
+    Csv(EventReader),
+    /// A Parquet input (per-event columns through a column map, or the
+    /// long form).
+    Parquet(ParquetReader),
+}
+
+impl fmt::Debug for InputReader {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            InputReader::Csv(_) => f.write_str("InputReader::Csv"),
+            InputReader::Parquet(r) => write!(f, "InputReader::Parquet({r:?})"),
+        }
+    }
+}
+
+/// An input that cannot be opened, or a fatal read error: it ends the
+/// stream (exit code 2 in the CLI). Bad *events* are not errors; they
+/// become `bad_input` rows.
+#[derive(Debug, thiserror::Error)]
+pub enum InputError {
+    /// From the CSV reader.
+    #[error(transparent)]
+    Csv(#[from] CsvError),
+    /// From the Parquet reader: not Parquet, a missing or mistyped mapped
+    /// column, a list whose length disagrees with its count, a corrupt page.
+    #[error(transparent)]
+    Parquet(#[from] ParquetError),
+}
+
+/// How inputs are read: the CSV reader's options (its object limit also
+/// applies to Parquet events) and the column map for Parquet files with
+/// one row per event.
+#[derive(Clone, Debug, Default)]
+pub struct InputOptions {
+    /// The CSV reader's options.
+    pub csv: ReadOptions,
+    /// The column map for per-event Parquet inputs; Parquet files in the
+    /// long form (columns `event` and `kind`) are read without one.
+    pub columns: Option<ColumnMap>,
+}
+
+impl From<ReadOptions> for InputOptions {
+    fn from(csv: ReadOptions) -> InputOptions {
+        InputOptions { csv, columns: None }
+    }
+}
+
+/// Opens one input, choosing the reader by content: a file that starts
+/// with Parquet's magic bytes `PAR1` is Parquet whatever its suffix;
+/// anything else (and `-`, standard input) is CSV, gzip-compressed when
+/// it starts with the gzip magic bytes.
+///
+/// A Parquet file in the long form is read as such; any other Parquet file
+/// needs `options.columns`.
+///
+/// ```
+/// use quarry::stream::{open_input, InputError, InputOptions};
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("events.csv");
+/// std::fs::write(&path, "PAR1 but not Parquet").unwrap();
+/// // Starts with the magic bytes: read as Parquet, and refused as such.
+/// let err = open_input(&path, &InputOptions::default()).unwrap_err();
+/// assert!(matches!(err, InputError::Parquet(_)), "{err}");
+/// ```
+pub fn open_input(path: &Path, options: &InputOptions) -> Result<InputReader, InputError> {
+    let parquet = path.as_os_str() != "-" && is_parquet(path).unwrap_or(false);
+    if !parquet {
+        return Ok(InputReader::Csv(EventReader::open(path, options.csv)?));
+    }
+    let parquet_options = ParquetOptions {
+        max_objects_per_event: options.csv.max_objects_per_event,
+        ..ParquetOptions::default()
+    };
+    let reader = match &options.columns {
+        None => ParquetReader::open(path, None, parquet_options)?,
+        // The long form needs no map, even when one is given for the
+        // per-event inputs beside it.
+        Some(map) => match ParquetReader::open(path, None, parquet_options) {
+            Ok(long_form) => long_form,
+            Err(_) => ParquetReader::open(
+                path,
+                Some(Layout::PerEvent(Box::new(map.clone()))),
+                parquet_options,
+            )?,
+        },
+    };
+    Ok(InputReader::Parquet(reader))
 }
 
 /// Every event of a list of inputs, one input after the other, as
@@ -165,8 +276,8 @@ pub struct NumberedEvent {
 /// warnings (e.g. unknown columns) go to [`on_warning`](Self::on_warning)'s
 /// callback, by default to standard error.
 pub struct RawEvents<'a> {
-    readers: Box<dyn Iterator<Item = Result<EventReader, CsvError>> + Send + 'a>,
-    current: Option<EventReader>,
+    readers: Box<dyn Iterator<Item = Result<InputReader, InputError>> + Send + 'a>,
+    current: Option<InputReader>,
     shard: Shard,
     next_ordinal: u64,
     warned: usize,
@@ -179,14 +290,32 @@ pub struct RawEvents<'a> {
 
 impl<'a> RawEvents<'a> {
     /// The events of these files (`-` is standard input, `.gz` is
-    /// decompressed), each opened when the previous one ends.
+    /// decompressed, Parquet is recognised by its magic bytes), each opened
+    /// when the previous one ends. Parquet files with one row per event
+    /// need a column map: see [`open_with`](Self::open_with).
     pub fn open(paths: &'a [PathBuf], options: ReadOptions) -> RawEvents<'a> {
-        RawEvents::from_readers(paths.iter().map(move |p| EventReader::open(p, options)))
+        RawEvents::open_with(paths, options.into())
     }
 
-    /// The events of readers opened by the caller (e.g. over memory).
+    /// The events of these files, read with `options` (see [`open_input`]).
+    pub fn open_with(paths: &'a [PathBuf], options: InputOptions) -> RawEvents<'a> {
+        RawEvents::from_inputs(paths.iter().map(move |p| open_input(p, &options)))
+    }
+
+    /// The events of CSV readers opened by the caller (e.g. over memory).
     pub fn from_readers(
         readers: impl IntoIterator<Item = Result<EventReader, CsvError>, IntoIter: Send + 'a> + 'a,
+    ) -> RawEvents<'a> {
+        RawEvents::from_inputs(
+            readers
+                .into_iter()
+                .map(|r| r.map(InputReader::Csv).map_err(InputError::from)),
+        )
+    }
+
+    /// The events of CSV or Parquet readers opened by the caller.
+    pub fn from_inputs(
+        readers: impl IntoIterator<Item = Result<InputReader, InputError>, IntoIter: Send + 'a> + 'a,
     ) -> RawEvents<'a> {
         RawEvents {
             readers: Box::new(readers.into_iter()),
@@ -213,7 +342,7 @@ impl<'a> RawEvents<'a> {
     }
 
     fn flush_warnings(&mut self) {
-        if let Some(r) = &self.current {
+        if let Some(InputReader::Csv(r)) = &self.current {
             for w in &r.warnings()[self.warned..] {
                 (self.on_warning)(w);
             }
@@ -223,16 +352,18 @@ impl<'a> RawEvents<'a> {
 }
 
 impl Iterator for RawEvents<'_> {
-    type Item = Result<NumberedEvent, CsvError>;
+    type Item = Result<NumberedEvent, InputError>;
 
     fn next(&mut self) -> Option<Self::Item> {
         loop {
             if self.current.is_none() {
                 match self.readers.next()? {
                     Ok(mut r) => {
-                        if self.opened_any {
+                        if let (true, InputReader::Csv(r)) = (self.opened_any, &mut r) {
                             // The inputs are one stream: an id of an
-                            // earlier input may not reappear.
+                            // earlier CSV input may not reappear. (Parquet
+                            // inputs check their own ids; they pass the
+                            // CSV inputs' ids on unchanged.)
                             r.continue_stream(std::mem::take(&mut self.seen));
                         }
                         self.opened_any = true;
@@ -243,12 +374,20 @@ impl Iterator for RawEvents<'_> {
                     Err(e) => return Some(Err(e)),
                 }
             }
-            let reader = self.current.as_mut()?;
-            match reader.next_raw() {
+            let next = match self.current.as_mut()? {
+                InputReader::Csv(r) => r
+                    .next_raw()
+                    .map(|x| x.map(RawInput::Csv).map_err(InputError::from)),
+                InputReader::Parquet(r) => r
+                    .next()
+                    .map(|x| x.map(RawInput::Parquet).map_err(InputError::from)),
+            };
+            match next {
                 None => {
-                    let seen = reader.take_seen_ids();
+                    if let Some(InputReader::Csv(r)) = self.current.as_mut() {
+                        self.seen = r.take_seen_ids();
+                    }
                     self.flush_warnings();
-                    self.seen = seen;
                     self.current = None;
                 }
                 Some(Err(e)) => return Some(Err(e)),
@@ -299,26 +438,68 @@ pub fn outcome_of<S: RowSink>(
     if !kept && policy == ErrorPolicy::Skip {
         return Outcome::OtherShard;
     }
-    let record = raw.parse();
-    if let (Record::Bad(bad), ErrorPolicy::Stop) = (&record, policy) {
-        let id = match bad.id {
-            Some(id) => format!("event {id}"),
-            None => format!("event '{}'", bad.raw_id),
-        };
+    let parsed = match raw {
+        RawInput::Csv(raw) => parsed_csv(raw.parse()),
+        RawInput::Parquet(record) => parsed_parquet(record),
+    };
+    if let (Err(bad), ErrorPolicy::Stop) = (&parsed, policy) {
         return Outcome::Stop(format!(
-            "{} ({id}; stopped at the first bad event, use --on-bad skip to go on)",
-            bad.error
+            "{} ({}; stopped at the first bad event, use --on-bad skip to go on)",
+            bad.message, bad.shown_id
         ));
     }
     if !kept {
         return Outcome::OtherShard;
     }
-    let (rows, bad) = rows_of(worker, ordinal, record);
+    let (rows, bad) = rows_of_parsed(worker, ordinal, parsed);
     Outcome::Rows(EventRows {
         prepared: S::prepare(&rows),
         statuses: rows.iter().map(|r| r.status).collect(),
         bad,
     })
+}
+
+/// A rejected event, whichever reader rejected it.
+struct BadInput {
+    id: Option<u64>,
+    /// `event 7`, or the id as written when it did not parse.
+    shown_id: String,
+    /// The reader's message naming file, place and column.
+    message: String,
+    reason: BadReason,
+}
+
+/// An event as the workers see it once parsed.
+type Parsed = Result<Event, BadInput>;
+
+fn parsed_csv(record: Record) -> Parsed {
+    match record {
+        Record::Good(e) => Ok(e),
+        Record::Bad(bad) => Err(BadInput {
+            id: bad.id,
+            shown_id: match bad.id {
+                Some(id) => format!("event {id}"),
+                None => format!("event '{}'", bad.raw_id),
+            },
+            message: bad.error.to_string(),
+            reason: bad.reason(),
+        }),
+    }
+}
+
+fn parsed_parquet(record: quarry_parquet::Record) -> Parsed {
+    match record {
+        quarry_parquet::Record::Good(e) => Ok(e),
+        quarry_parquet::Record::Bad(bad) => Err(BadInput {
+            id: bad.id,
+            shown_id: match bad.id {
+                Some(id) => format!("event {id}"),
+                None => "event id unreadable".to_string(),
+            },
+            message: bad.to_string(),
+            reason: bad.reason,
+        }),
+    }
 }
 
 /// The rows of one parsed record, one per hypothesis of the worker's
@@ -344,8 +525,16 @@ pub fn rows_of(
     ordinal: u64,
     record: Record,
 ) -> (Vec<Row>, Option<BadReason>) {
-    match record {
-        Record::Good(event) => {
+    rows_of_parsed(worker, ordinal, parsed_csv(record))
+}
+
+fn rows_of_parsed(
+    worker: &mut Worker<'_>,
+    ordinal: u64,
+    parsed: Parsed,
+) -> (Vec<Row>, Option<BadReason>) {
+    match parsed {
+        Ok(event) => {
             let rows = worker
                 .reconstruct(event)
                 .iter()
@@ -353,15 +542,14 @@ pub fn rows_of(
                 .collect();
             (rows, None)
         }
-        Record::Bad(bad) => {
-            let reason = bad.error.to_string();
+        Err(bad) => {
             let rows = worker
                 .pipeline()
                 .hypotheses()
                 .iter()
-                .map(|h| Row::bad_input(ordinal, bad.id, h.name(), &reason))
+                .map(|h| Row::bad_input(ordinal, bad.id, h.name(), &bad.message))
                 .collect();
-            (rows, Some(bad.reason()))
+            (rows, Some(bad.reason))
         }
     }
 }

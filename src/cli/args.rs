@@ -66,6 +66,39 @@ pub enum Command {
     /// output, after checking their manifests.
     #[command(after_help = super::merge::MERGE_HELP)]
     Merge(super::merge::MergeArgs),
+    /// Column maps for Parquet inputs with one row per event: list or print
+    /// the shipped ones, or draft one from a file's columns.
+    #[command(subcommand, after_help = COLUMNS_HELP)]
+    Columns(ColumnsCommand),
+}
+
+const COLUMNS_HELP: &str = concat!(
+    "Examples:\n",
+    "  quarry columns list\n",
+    "  quarry columns show nanoaod > my-map.toml\n",
+    "  # draft a map from a file's own column names, then check and edit it\n",
+    "  quarry columns template events.parquet > my-map.toml\n",
+    "  quarry reco events.parquet --columns my-map.toml -o out.csv\n\n",
+    "Map keys and layouts: docs/parquet.md.\n",
+);
+
+#[derive(Debug, Subcommand)]
+pub enum ColumnsCommand {
+    /// Print every shipped map's name and a one-line description.
+    List,
+    /// Print a shipped map as TOML, to copy and edit.
+    Show {
+        /// Shipped map name.
+        name: String,
+    },
+    /// Print a draft map for a Parquet file, guessed from its schema: every
+    /// guess is marked for checking, every key the drafter could not fill
+    /// is left commented out.
+    Template {
+        /// The Parquet file.
+        #[arg(value_name = "FILE")]
+        file: PathBuf,
+    },
 }
 
 const PRESETS_HELP: &str = concat!(
@@ -137,7 +170,9 @@ const RECO_HELP: &str = concat!(
     "  # shard 3 of 10 of a large input (batch job array)\n",
     "  quarry reco big.csv.gz -H ttbar-ljets --shard 3/10 -o part-3.csv\n",
     "  # b-tag scores as χ² terms instead of a cut; keep and fit 5 assignments\n",
-    "  quarry reco signal.csv -H bwbw-ljets --btag-mode weighted --best 5 --fit\n\n",
+    "  quarry reco signal.csv -H bwbw-ljets --btag-mode weighted --best 5 --fit\n",
+    "  # NanoAOD-style Parquet (one row per event), results as Parquet\n",
+    "  quarry reco events.parquet --columns nanoaod -H ttbar-ljets -o out.parquet\n\n",
     "Output: one row per input event per hypothesis, in input order, whatever\n",
     "--threads is. Columns are listed in docs/cli.md.\n\n",
     exit_codes_help!(),
@@ -184,9 +219,17 @@ pub enum BtagMode {
 
 #[derive(Debug, Args)]
 pub struct RecoArgs {
-    /// Input event files (quarry CSV, optionally .gz); `-` reads stdin.
+    /// Input event files: quarry CSV (optionally .gz; `-` reads stdin) or
+    /// Parquet, told apart by content (a Parquet file starts with `PAR1`),
+    /// not by suffix.
     #[arg(required = true, value_name = "INPUT")]
     pub inputs: Vec<PathBuf>,
+
+    /// Column map for Parquet inputs with one row per event: a shipped map
+    /// (`nanoaod`; see `quarry columns list`) or a TOML file. Parquet in
+    /// quarry's long form needs none.
+    #[arg(long, value_name = "NAME|FILE")]
+    pub columns: Option<String>,
 
     /// Hypothesis: a preset name (see `quarry presets list`) or a TOML file.
     /// Repeat for several; rows of one event follow the order given.
@@ -204,7 +247,9 @@ pub struct RecoArgs {
     #[arg(long)]
     pub fit: bool,
 
-    /// Output file (`-` = stdout; `.gz` suffix gzips). Written atomically.
+    /// Output file (`-` = stdout; `.gz` suffix gzips; `.parquet` or `.pq`
+    /// suffix writes typed Parquet with the same columns). Written
+    /// atomically.
     #[arg(short, long, default_value = "-", value_name = "FILE")]
     pub output: PathBuf,
 

@@ -2,6 +2,7 @@
 //! codes.
 
 pub mod args;
+pub mod columns;
 pub mod eval;
 pub mod generate;
 pub mod interrupt;

@@ -6,8 +6,10 @@ use std::path::PathBuf;
 use quarry::assign::{BtagPolicy, SearchBudget, SearchConfig, SearchConfigError};
 use quarry::csv::{ErrorPolicy, ReadOptions, UnknownColumns};
 use quarry::event::Selection;
-use quarry::output::{CsvSink, RowSink};
-use quarry::stream::{ordered_chunked_map, outcome_of, Outcome, RawEvents};
+use quarry::output::{is_parquet_output, CsvSink, ParquetSink, RowSink};
+use quarry::stream::{
+    ordered_chunked_map, outcome_of, InputOptions, NumberedEvent, Outcome, RawEvents,
+};
 use quarry::{Pipeline, PipelineError};
 
 use super::args::{BtagMode, OnBad, RecoArgs, UnknownColumnsArg};
@@ -175,23 +177,60 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
         },
         ..ReadOptions::default().with_policy(policy)
     };
+    let columns = match &args.columns {
+        None => None,
+        Some(name_or_path) => Some(
+            quarry::parquet::ColumnMap::load(name_or_path)
+                .map_err(|e| Failure::Usage(format!("--columns: {e}")))?,
+        ),
+    };
+    let input_options = InputOptions {
+        csv: options,
+        columns,
+    };
     // Reader warnings (an unknown column, a file without events) mean the
     // input may be misread: --quiet does not hide them.
-    let records = RawEvents::open(&args.inputs, options)
+    let records = RawEvents::open_with(&args.inputs, input_options)
         .shard(args.shard.unwrap_or_default())
         .on_warning(|w| eprintln!("quarry: warning: {w}"))
         .map(|r| r.map_err(|e| Failure::Input(e.to_string())));
     let interrupt = Interrupt::install();
+    let output_error = |e: &dyn std::fmt::Display| Failure::Output(e.to_string());
+    if is_parquet_output(&args.output) {
+        let writer = ParquetSink::create(&args.output).map_err(|e| output_error(&e))?;
+        let temp = writer.temp_path().to_path_buf();
+        interrupt.watch_output(Some(temp), args.output.display().to_string());
+        stream_into(args, &pipeline, &pool, policy, records, &interrupt, writer)
+    } else {
+        let writer = CsvSink::create(&args.output).map_err(|e| output_error(&e))?;
+        interrupt.watch_output(
+            writer.temp_path().map(PathBuf::from),
+            args.output.display().to_string(),
+        );
+        stream_into(args, &pipeline, &pool, policy, records, &interrupt, writer)
+    }
+}
+
+/// Streams `records` through the pipeline into `writer` (either output
+/// format) and commits it: the part of `quarry reco` after the options.
+fn stream_into<S>(
+    args: &RecoArgs,
+    pipeline: &Pipeline,
+    pool: &rayon::ThreadPool,
+    policy: ErrorPolicy,
+    records: impl Iterator<Item = Result<NumberedEvent, Failure>> + Send,
+    interrupt: &Interrupt,
+    mut writer: S,
+) -> Result<(), Failure>
+where
+    S: RowSink + Send,
+    S::Error: std::fmt::Display,
+{
     // The first signal also stops a search in progress: each worker's
     // searchers watch the flag (the status of that event is `cancelled`,
     // never written, because the run then stops).
     let cancel = interrupt.flag();
     let mut read = 0u64;
-    let mut writer = CsvSink::create(&args.output).map_err(|e| Failure::Output(e.to_string()))?;
-    interrupt.watch_output(
-        writer.temp_path().map(PathBuf::from),
-        args.output.display().to_string(),
-    );
     let mut summary = Summary::start();
     let started = std::time::SystemTime::now();
     let bar = progress_bar(!args.no_progress && !args.quiet);
@@ -204,7 +243,7 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                 worker.set_cancel(Some(std::sync::Arc::clone(&cancel)));
                 worker
             },
-            |worker, item| outcome_of::<CsvSink>(worker, policy, item),
+            |worker, item| outcome_of::<S>(worker, policy, item),
             |outcome| {
                 if interrupt.is_set() {
                     return Err(Failure::Interrupted(
@@ -258,7 +297,7 @@ pub fn run(args: &RecoArgs) -> Result<(), Failure> {
                 .map_err(|e| Failure::Output(e.to_string()))?;
             if to_file {
                 let threads = pool.current_num_threads();
-                super::reco_manifest::manifest(args, &pipeline, &summary, started, threads)?
+                super::reco_manifest::manifest(args, pipeline, &summary, started, threads)?
                     .write_beside(&args.output)
                     .map_err(|e| Failure::Output(e.to_string()))?;
             }

@@ -28,6 +28,7 @@ fn options(args: &RecoArgs, threads: usize) -> (BTreeMap<String, Value>, BTreeMa
         hypotheses: _, // the manifest's `hypotheses`
         output: _,     // the manifest's `output`
         shard: _,      // the manifest's `shard`
+        columns,
         fit,
         threads: _,
         on_bad,
@@ -63,12 +64,29 @@ fn options(args: &RecoArgs, threads: usize) -> (BTreeMap<String, Value>, BTreeMa
         ("max_assignments".to_string(), json!(max_assignments)),
         ("max_search_seconds".to_string(), json!(max_search_seconds)),
         ("unknown_columns".to_string(), name_of(unknown_columns)),
+        ("columns".to_string(), columns_stamp(columns.as_deref())),
     ]);
     let run = BTreeMap::from([
         ("threads".to_string(), json!(threads)),
         ("chunk_size".to_string(), json!(chunk_size)),
     ]);
     (options, run)
+}
+
+/// The column map as given (`--columns`: a shipped name or a file) and
+/// the digest of its TOML text, so that an edited map file under the same
+/// name shows; `null` without one.
+fn columns_stamp(columns: Option<&str>) -> Value {
+    let Some(given) = columns else {
+        return Value::Null;
+    };
+    let text = quarry::parquet::SHIPPED_MAPS
+        .iter()
+        .find(|(name, _, _)| *name == given)
+        .map(|(_, _, toml)| toml.as_bytes().to_vec())
+        .or_else(|| std::fs::read(given).ok())
+        .unwrap_or_default();
+    json!({ "source": given, "toml_digest": manifest::digest(&text) })
 }
 
 /// The manifest of a completed run whose output `args.output` was just

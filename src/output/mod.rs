@@ -1,6 +1,6 @@
 //! The output of a reconstruction: one flat [`Row`] per event per
 //! hypothesis, with a fixed set of columns whatever the hypotheses are, and
-//! the [`RowSink`]s that write rows in a format ([`CsvSink`]).
+//! the [`RowSink`]s that write rows in a format ([`CsvSink`], [`ParquetSink`]).
 //!
 //! The columns are defined once, in [`quarry_csv::columns`] (name, kind,
 //! unit, meaning); [`Row`]'s fields are checked against that list at compile
@@ -12,9 +12,11 @@
 //! apply" (e.g. no fit requested, no neutrino in the hypothesis, event
 //! rejected by the reader).
 
+mod parquet_sink;
 mod row;
 mod sink;
 
+pub use parquet_sink::{is_parquet_output, parquet_columns, parquet_type, ParquetSink};
 pub use quarry_csv::columns::{Column, ColumnKind, RECO_COLUMNS};
 pub use row::Row;
 pub use sink::{CsvSink, RowSink};

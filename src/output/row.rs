@@ -4,21 +4,28 @@
 
 use quarry_csv::columns::{ColumnKind, RECO_COLUMNS};
 use quarry_csv::RecordText;
+use quarry_parquet::Cell as TypedCell;
 use serde::Serialize;
 
 use super::{chi2, gev, significant};
 use crate::{Reconstruction, Status};
 
-/// A field type of [`Row`]: its column kind and its CSV cell.
+/// A field type of [`Row`]: its column kind, its CSV cell and its Parquet
+/// cell (of the type [`super::parquet_type`] gives its kind; an empty text
+/// is null there, as "does not apply" is an empty CSV field).
 trait Cell {
     const KIND: ColumnKind;
     fn write(&self, r: &mut RecordText<'_>);
+    fn typed(&self) -> TypedCell<'_>;
 }
 
 impl Cell for u64 {
     const KIND: ColumnKind = ColumnKind::UInt;
     fn write(&self, r: &mut RecordText<'_>) {
         r.uint(Some(*self));
+    }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::U64(Some(*self))
     }
 }
 
@@ -27,6 +34,9 @@ impl Cell for Option<u64> {
     fn write(&self, r: &mut RecordText<'_>) {
         r.uint(*self);
     }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::U64(*self)
+    }
 }
 
 impl Cell for Option<usize> {
@@ -34,12 +44,18 @@ impl Cell for Option<usize> {
     fn write(&self, r: &mut RecordText<'_>) {
         r.uint(self.map(|n| n as u64));
     }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::U64(self.map(|n| n as u64))
+    }
 }
 
 impl Cell for Option<u32> {
     const KIND: ColumnKind = ColumnKind::UInt;
     fn write(&self, r: &mut RecordText<'_>) {
         r.uint(self.map(u64::from));
+    }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::U64(self.map(u64::from))
     }
 }
 
@@ -49,12 +65,18 @@ impl Cell for Option<u8> {
     fn write(&self, r: &mut RecordText<'_>) {
         r.uint(self.map(u64::from));
     }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::Bool(self.map(|v| v != 0))
+    }
 }
 
 impl Cell for Option<f64> {
     const KIND: ColumnKind = ColumnKind::Float;
     fn write(&self, r: &mut RecordText<'_>) {
         r.float(*self);
+    }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::F64(*self)
     }
 }
 
@@ -63,12 +85,18 @@ impl Cell for String {
     fn write(&self, r: &mut RecordText<'_>) {
         r.text(self);
     }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::Text(Some(self.as_str()).filter(|s| !s.is_empty()))
+    }
 }
 
 impl Cell for &'static str {
     const KIND: ColumnKind = ColumnKind::Text;
     fn write(&self, r: &mut RecordText<'_>) {
         r.text(self);
+    }
+    fn typed(&self) -> TypedCell<'_> {
+        TypedCell::Text(Some(*self).filter(|s| !s.is_empty()))
     }
 }
 
@@ -140,6 +168,22 @@ macro_rules! schema_row {
                 let mut r = RecordText::new(out);
                 $(Cell::write(&self.$field, &mut r);)*
                 r.end();
+            }
+
+            /// This row's typed cells, one per column in schema order, of
+            /// the Parquet types [`super::parquet_columns`] declares (null
+            /// where the CSV cell is empty).
+            ///
+            /// ```
+            /// use quarry::parquet::Cell;
+            /// let row = quarry::output::Row::bad_input(3, None, "ttbar-ljets", "x");
+            /// let cells = row.typed_cells();
+            /// assert_eq!(cells.len(), quarry::output::COLUMNS.len());
+            /// assert_eq!(cells[0], Cell::U64(Some(3)));
+            /// assert_eq!(cells[1], Cell::U64(None));
+            /// ```
+            pub fn typed_cells(&self) -> [TypedCell<'_>; RECO_COLUMNS.len()] {
+                [$(Cell::typed(&self.$field)),*]
             }
         }
     };

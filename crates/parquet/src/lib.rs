@@ -56,5 +56,5 @@ mod writer;
 pub use error::{BadRow, Location, ParquetError, Record};
 pub use map::{CollectionColumns, ColumnMap, MetColumns, NegativePolicy, SHIPPED_MAPS};
 pub use reader::{is_parquet, Layout, ParquetReader, ReadOptions, MAGIC};
-pub use template::template;
+pub use template::{template, template_of_file};
 pub use writer::{Cell, Column, ColumnType, TableWriter, ROW_GROUP_ROWS};

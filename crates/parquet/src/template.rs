@@ -142,3 +142,26 @@ pub fn template(schema: &Schema, file: &str) -> String {
     }
     out
 }
+
+/// [`template`] for the Parquet file at `path` (only its footer is read).
+pub fn template_of_file(path: &std::path::Path) -> Result<String, crate::ParquetError> {
+    let name = path.display().to_string();
+    if !crate::is_parquet(path).map_err(|source| crate::ParquetError::Io {
+        file: name.clone(),
+        source,
+    })? {
+        return Err(crate::ParquetError::NotParquet { file: name });
+    }
+    let file = std::fs::File::open(path).map_err(|source| crate::ParquetError::Io {
+        file: name.clone(),
+        source,
+    })?;
+    let metadata =
+        parquet::arrow::arrow_reader::ArrowReaderMetadata::load(&file, Default::default())
+            .map_err(|e| crate::ParquetError::Decode {
+                file: name.clone(),
+                context: "footer".into(),
+                message: e.to_string(),
+            })?;
+    Ok(template(metadata.schema(), &name))
+}

@@ -228,6 +228,12 @@ impl TableWriter {
         })
     }
 
+    /// The hidden temporary file the rows go to until
+    /// [`finish`](Self::finish) renames it into place.
+    pub fn temp_path(&self) -> &Path {
+        &self.temporary
+    }
+
     /// Appends one row; `cells` must match the columns in number and type.
     pub fn push(&mut self, cells: &[Cell<'_>]) -> Result<(), ParquetError> {
         if cells.len() != self.columns.len() {
