@@ -412,3 +412,84 @@ fn columns_template_drafts_a_map_that_reads_the_file() {
     let not_parquet = quarry(&["columns", "template", s(&map)]);
     assert_eq!(not_parquet.status.code(), Some(2));
 }
+
+#[test]
+fn parquet_output_has_the_csv_columns_typed_and_merge_refuses_parquet_shards() {
+    use arrow_array::cast::AsArray;
+    use arrow_array::Array;
+    let dir = tempfile::tempdir().unwrap();
+    let csv_out = dir.path().join("o.csv");
+    let pq_out = dir.path().join("o.parquet");
+    let map = map_2015();
+    let extra = ["--columns", s(&map), "--no-selection", "--fit"];
+    reco(&fixture(), &extra, &csv_out);
+    reco(&fixture(), &extra, &pq_out);
+    assert!(dir.path().join("o.parquet.manifest.json").exists());
+    // Every cell of the Parquet output, written as the CSV output writes
+    // it, gives the CSV output's cells (the Rust side of the check that
+    // tests/reference would make with pyarrow).
+    let want = rows(&csv_out);
+    let file = std::fs::File::open(&pq_out).unwrap();
+    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file)
+        .unwrap()
+        .build()
+        .unwrap();
+    let mut got: Vec<BTreeMap<String, String>> = Vec::new();
+    for batch in reader {
+        let batch = batch.unwrap();
+        let schema = batch.schema();
+        let names: Vec<&String> = schema.fields().iter().map(|f| f.name()).collect();
+        assert_eq!(names, quarry::output::COLUMNS);
+        for i in 0..batch.num_rows() {
+            let mut row = BTreeMap::new();
+            for (c, name) in names.iter().enumerate() {
+                let col = batch.column(c);
+                let text = if col.is_null(i) {
+                    String::new()
+                } else if let Some(a) = col.as_primitive_opt::<arrow_array::types::UInt64Type>() {
+                    a.value(i).to_string()
+                } else if let Some(a) = col.as_primitive_opt::<arrow_array::types::Float64Type>() {
+                    format!("{:?}", a.value(i))
+                } else if let Some(a) = col.as_boolean_opt() {
+                    u8::from(a.value(i)).to_string()
+                } else if let Some(d) = col.as_dictionary_opt::<arrow_array::types::Int32Type>() {
+                    let values = d.values().as_string::<i32>();
+                    values.value(d.keys().value(i) as usize).to_string()
+                } else {
+                    panic!("column {name}: unexpected type {:?}", col.data_type());
+                };
+                row.insert(name.to_string(), text);
+            }
+            got.push(row);
+        }
+    }
+    assert_eq!(got.len(), 600);
+    assert!(
+        got.iter().any(|r| !r["fit_status"].is_empty()),
+        "the fit ran"
+    );
+    // Numbers compared as numbers (the CSV writes the shortest text that
+    // reads back to the same f64), everything else as text.
+    let norm = |row: &BTreeMap<String, String>| -> BTreeMap<String, String> {
+        row.iter()
+            .map(|(k, v)| {
+                let v = v
+                    .parse::<f64>()
+                    .map_or_else(|_| v.clone(), |x| format!("{x:?}"));
+                (k.clone(), v)
+            })
+            .collect()
+    };
+    for (g, w) in got.iter().zip(&want) {
+        assert_eq!(norm(g), norm(w));
+    }
+    // quarry merge refuses Parquet shards, naming the file.
+    let merged = dir.path().join("merged.csv");
+    let r = quarry(&["merge", s(&pq_out), "-o", s(&merged)]);
+    assert_eq!(r.status.code(), Some(5));
+    let err = String::from_utf8_lossy(&r.stderr);
+    assert!(
+        err.contains("o.parquet") && err.contains("Parquet shard"),
+        "{err}"
+    );
+}

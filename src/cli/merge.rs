@@ -113,6 +113,18 @@ pub fn run(args: &MergeArgs) -> Result<(), Failure> {
         // Also through links and other spellings of a shard's path.
         super::protect::refuse_output_among_inputs(out, args.shards.iter().map(|p| p.as_path()))?;
     }
+    // Merging is a byte-level concatenation of CSV shards; Parquet shards
+    // are refused by content (any suffix) rather than misread as text.
+    for shard in &args.shards {
+        if quarry::parquet::is_parquet(shard).unwrap_or(false) {
+            return Err(Failure::Refused(format!(
+                "{}: a Parquet shard; quarry merge joins CSV shards only (write the shards \
+                 with -o part-K.csv and merge those, or read the Parquet shards together \
+                 with pyarrow/pandas: each shard's rows carry their `ordinal`)",
+                shard.display()
+            )));
+        }
+    }
     let set = ShardSet::check(&args.shards).map_err(failure)?;
     let n = set.shards().len();
     let Some(out) = &args.output else {
