@@ -9,8 +9,9 @@
 use std::io::Cursor;
 
 use quarry::csv::{CsvError, ErrorPolicy, EventReader, ReadOptions, ReadSummary, Record};
-use quarry::event::Event;
-use quarry::lorentz::FourMomentum;
+
+pub mod parquet_checks;
+pub use parquet_checks::check_good_event;
 
 /// Everything one pass of the reader produced.
 pub struct ReadOutcome {
@@ -129,48 +130,6 @@ pub fn check_outcome(out: &ReadOutcome, policy: ErrorPolicy, max_objects: usize)
                     assert_eq!(b.raw_id.trim().parse::<u64>().ok(), Some(id));
                 }
             }
-        }
-    }
-}
-
-fn finite(p: &FourMomentum) -> bool {
-    p.px().is_finite() && p.py().is_finite() && p.pz().is_finite() && p.e().is_finite()
-}
-
-/// What the reader promises about a good event (docs/csv-format.md).
-pub fn check_good_event(e: &Event, max_objects: usize) {
-    assert!(e.weight.is_finite(), "weight {}", e.weight);
-    assert!(
-        e.met.px.is_finite() && e.met.py.is_finite(),
-        "met {:?}",
-        e.met
-    );
-    if let Some([xx, xy, yy]) = e.met.cov {
-        assert!(xx >= 0.0 && yy >= 0.0 && xx.is_finite() && xy.is_finite() && yy.is_finite());
-    }
-    let n = e.jets.len() + e.fat_jets.len() + e.electrons.len() + e.muons.len();
-    assert!(n <= max_objects, "{n} objects > limit {max_objects}");
-    let check_p4 = |p: &FourMomentum, what: &str| {
-        assert!(finite(p), "{what} has a non-finite four-vector {p:?}");
-        assert!(p.e() >= 0.0, "{what} has negative energy {p:?}");
-        let pabs = (p.px() * p.px() + p.py() * p.py() + p.pz() * p.pz()).sqrt();
-        // E ≥ |p| up to rounding in the conversion from (pt, η, φ, m).
-        assert!(p.e() >= pabs * (1.0 - 1e-9) - 1e-9, "{what}: E < |p| {p:?}");
-    };
-    for (i, j) in e.jets.iter().enumerate() {
-        check_p4(&j.p4, "jet");
-        assert!((0.0..=1.0).contains(&j.btag), "btag {}", j.btag);
-        assert_eq!(j.index as usize, i, "jet index");
-    }
-    for (i, j) in e.fat_jets.iter().enumerate() {
-        check_p4(&j.p4, "fat jet");
-        assert_eq!(j.index as usize, i, "fat jet index");
-    }
-    for list in [&e.electrons, &e.muons] {
-        for (i, l) in list.iter().enumerate() {
-            check_p4(&l.p4, "lepton");
-            assert!(matches!(l.charge, -1..=1), "charge {}", l.charge);
-            assert_eq!(l.index as usize, i, "lepton index");
         }
     }
 }

@@ -9,8 +9,12 @@ use std::sync::mpsc::{sync_channel, Receiver};
 use std::sync::Arc;
 
 use arrow_schema::SchemaRef;
-use parquet::arrow::arrow_reader::{ArrowReaderMetadata, ParquetRecordBatchReaderBuilder};
+use bytes::Bytes;
+use parquet::arrow::arrow_reader::{
+    ArrowReaderMetadata, ParquetRecordBatchReader, ParquetRecordBatchReaderBuilder,
+};
 use parquet::arrow::ProjectionMask;
+use parquet::file::reader::ChunkReader;
 
 use crate::long::{Grouper, LongRow};
 use crate::{jagged, long, ColumnMap, ParquetError, Record};
@@ -31,6 +35,30 @@ pub fn is_parquet(path: &Path) -> std::io::Result<bool> {
         }
     }
     Ok(n == 4 && &head == MAGIC)
+}
+
+/// The footer's metadata; a panic of the parquet crate on a corrupt footer
+/// becomes an error.
+fn load_metadata<T: ChunkReader>(input: &T) -> parquet::errors::Result<ArrowReaderMetadata> {
+    std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+        ArrowReaderMetadata::load(input, Default::default())
+    }))
+    .unwrap_or_else(|panic| {
+        Err(parquet::errors::ParquetError::General(format!(
+            "corrupt footer: {}",
+            panic_text(&*panic)
+        )))
+    })
+}
+
+/// A panic's message, for the error that replaces it.
+fn panic_text(panic: &(dyn std::any::Any + Send)) -> String {
+    let text = panic
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| panic.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "the Parquet decoder failed".into());
+    text.replace('\n', " ")
 }
 
 /// Which layout to read.
@@ -74,9 +102,16 @@ enum Decoded {
     Rows(Vec<LongRow>),
 }
 
+/// Where the file's bytes are: on disk (each row group's thread opens its
+/// own handle) or in memory (shared, reference-counted).
+enum Input {
+    Path(PathBuf),
+    Memory(Bytes),
+}
+
 /// What every row group's thread shares.
 struct Source {
-    path: PathBuf,
+    input: Input,
     name: Arc<str>,
     metadata: ArrowReaderMetadata,
     mask: ProjectionMask,
@@ -86,6 +121,19 @@ struct Source {
 }
 
 impl Source {
+    /// Row group `g`'s mapped columns, batch by batch.
+    fn batches<T: ChunkReader + 'static>(
+        &self,
+        input: T,
+        g: usize,
+    ) -> parquet::errors::Result<ParquetRecordBatchReader> {
+        ParquetRecordBatchReaderBuilder::new_with_metadata(input, self.metadata.clone())
+            .with_projection(self.mask.clone())
+            .with_row_groups(vec![g])
+            .with_batch_size(self.options.batch_rows.max(1))
+            .build()
+    }
+
     /// Decodes row group `g` batch by batch into `tx` (until the receiver
     /// is dropped).
     fn decode(&self, g: usize, tx: std::sync::mpsc::SyncSender<Result<Decoded, ParquetError>>) {
@@ -95,22 +143,19 @@ impl Source {
             context: context.clone(),
             message: e.to_string(),
         };
-        let file = match File::open(&self.path) {
-            Ok(f) => f,
-            Err(source) => {
-                let _ = tx.send(Err(ParquetError::Io {
-                    file: self.name.to_string(),
-                    source,
-                }));
-                return;
-            }
+        let reader = match &self.input {
+            Input::Path(path) => match File::open(path) {
+                Ok(file) => self.batches(file, g),
+                Err(source) => {
+                    let _ = tx.send(Err(ParquetError::Io {
+                        file: self.name.to_string(),
+                        source,
+                    }));
+                    return;
+                }
+            },
+            Input::Memory(bytes) => self.batches(bytes.clone(), g),
         };
-        let reader =
-            ParquetRecordBatchReaderBuilder::new_with_metadata(file, self.metadata.clone())
-                .with_projection(self.mask.clone())
-                .with_row_groups(vec![g])
-                .with_batch_size(self.options.batch_rows.max(1))
-                .build();
         let reader = match reader {
             Ok(r) => r,
             Err(e) => {
@@ -171,6 +216,8 @@ pub struct ParquetReader {
     source: Arc<Source>,
     next_group: usize,
     pending: VecDeque<Receiver<Result<Decoded, ParquetError>>>,
+    /// Rows received so far from the front row group of `pending`.
+    received: u64,
     ready: VecDeque<Record>,
     grouper: Option<Grouper>,
     done: bool,
@@ -205,12 +252,58 @@ impl ParquetReader {
             });
         }
         let file = File::open(path).map_err(io)?;
-        let metadata = ArrowReaderMetadata::load(&file, Default::default()).map_err(|e| {
-            ParquetError::Decode {
+        let metadata = load_metadata(&file);
+        Self::with_metadata(
+            Input::Path(path.to_path_buf()),
+            name,
+            metadata,
+            layout,
+            options,
+        )
+    }
+
+    /// Reads a Parquet file held in memory, as [`ParquetReader::open`]
+    /// reads one on disk (for tests, fuzzing, and callers that fetched the
+    /// bytes themselves). `name` stands for the file in every message.
+    /// `bytes::Bytes` is cheap to clone: each row group's thread shares it.
+    ///
+    /// ```
+    /// let err = quarry_parquet::ParquetReader::from_bytes(
+    ///     bytes::Bytes::from_static(b"event,kind\n"),
+    ///     "upload.csv",
+    ///     None,
+    ///     Default::default(),
+    /// )
+    /// .unwrap_err();
+    /// assert!(err.to_string().starts_with("upload.csv: not a Parquet file"));
+    /// ```
+    pub fn from_bytes(
+        bytes: Bytes,
+        name: &str,
+        layout: Option<Layout>,
+        options: ReadOptions,
+    ) -> Result<ParquetReader, ParquetError> {
+        if !bytes.starts_with(MAGIC) {
+            return Err(ParquetError::NotParquet {
                 file: name.to_string(),
-                context: "footer".into(),
-                message: e.to_string(),
-            }
+            });
+        }
+        let metadata = load_metadata(&bytes);
+        Self::with_metadata(Input::Memory(bytes), name.into(), metadata, layout, options)
+    }
+
+    /// The shared part of opening: the footer, the layout, the schema check.
+    fn with_metadata(
+        input: Input,
+        name: Arc<str>,
+        metadata: parquet::errors::Result<ArrowReaderMetadata>,
+        layout: Option<Layout>,
+        options: ReadOptions,
+    ) -> Result<ParquetReader, ParquetError> {
+        let metadata = metadata.map_err(|e| ParquetError::Decode {
+            file: name.to_string(),
+            context: "footer".into(),
+            message: e.to_string(),
         })?;
         let schema = metadata.schema().clone();
         let layout = match layout {
@@ -237,13 +330,13 @@ impl ParquetReader {
         let mut starts = vec![0u64];
         for rg in metadata.metadata().row_groups() {
             let last = *starts.last().expect("non-empty");
-            starts.push(last + u64::try_from(rg.num_rows()).unwrap_or(0));
+            starts.push(last.saturating_add(u64::try_from(rg.num_rows()).unwrap_or(0)));
         }
         let grouper = (layout == Layout::LongForm)
             .then(|| Grouper::new(Arc::clone(&name), &schema, options.max_objects_per_event));
         Ok(ParquetReader {
             source: Arc::new(Source {
-                path: path.to_path_buf(),
+                input,
                 name,
                 metadata,
                 mask,
@@ -253,6 +346,7 @@ impl ParquetReader {
             }),
             next_group: 0,
             pending: VecDeque::new(),
+            received: 0,
             ready: VecDeque::new(),
             grouper,
             done: false,
@@ -280,6 +374,17 @@ impl ParquetReader {
         self.source.starts.len() - 1
     }
 
+    /// Whether `decoded` would take the front row group past the footer's
+    /// row count (a corrupt file): its rows are then not yielded.
+    fn overruns(&self, decoded: &Decoded) -> bool {
+        let g = self.next_group - self.pending.len();
+        let rows = match decoded {
+            Decoded::Events(e) => e.len(),
+            Decoded::Rows(r) => r.len(),
+        } as u64;
+        self.received + rows > self.source.starts[g + 1] - self.source.starts[g]
+    }
+
     /// Starts decoding row groups until `decode_ahead` are in flight.
     fn spawn_ahead(&mut self) {
         while self.pending.len() < self.source.options.decode_ahead.max(1)
@@ -288,7 +393,22 @@ impl ParquetReader {
             let (tx, rx) = sync_channel(2);
             let source = Arc::clone(&self.source);
             let g = self.next_group;
-            std::thread::spawn(move || source.decode(g, tx));
+            std::thread::spawn(move || {
+                // The parquet crate (60.1) panics on some corrupt pages
+                // (negative column offsets, a missing dictionary, short
+                // buffers; found by fuzzing): such a panic ends this row
+                // group with an error naming it, never the process.
+                let guard = tx.clone();
+                let decoded =
+                    std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| source.decode(g, tx)));
+                if let Err(panic) = decoded {
+                    let _ = guard.send(Err(ParquetError::Decode {
+                        file: source.name.to_string(),
+                        context: format!("row group {g}"),
+                        message: format!("corrupt data: {}", panic_text(&*panic)),
+                    }));
+                }
+            });
             self.pending.push_back(rx);
             self.next_group += 1;
         }
@@ -312,17 +432,51 @@ impl Iterator for ParquetReader {
                 return self.grouper.as_mut().and_then(Grouper::finish).map(Ok);
             };
             match front.recv() {
-                // The row group's thread finished and dropped its sender.
+                // The row group's thread finished and dropped its sender;
+                // if it stopped short of the footer's row count without
+                // saying why (a panic in a decoder), that is an error: no
+                // event may vanish silently.
                 Err(_) => {
                     self.pending.pop_front();
+                    let g = self.next_group - self.pending.len() - 1;
+                    let expected = self.source.starts[g + 1] - self.source.starts[g];
+                    let received = std::mem::take(&mut self.received);
+                    if received < expected {
+                        self.done = true;
+                        self.pending.clear();
+                        return Some(Err(ParquetError::Decode {
+                            file: self.source.name.to_string(),
+                            context: format!("row group {g}"),
+                            message: format!(
+                                "decoding stopped after {received} of the footer's {expected} rows"
+                            ),
+                        }));
+                    }
                 }
                 Ok(Err(e)) => {
                     self.done = true;
                     self.pending.clear();
                     return Some(Err(e));
                 }
-                Ok(Ok(Decoded::Events(events))) => self.ready.extend(events),
+                Ok(Ok(decoded)) if self.overruns(&decoded) => {
+                    let g = self.next_group - self.pending.len();
+                    self.done = true;
+                    self.pending.clear();
+                    return Some(Err(ParquetError::Decode {
+                        file: self.source.name.to_string(),
+                        context: format!("row group {g}"),
+                        message: format!(
+                            "the pages hold more rows than the footer's {}",
+                            self.source.starts[g + 1] - self.source.starts[g]
+                        ),
+                    }));
+                }
+                Ok(Ok(Decoded::Events(events))) => {
+                    self.received += events.len() as u64;
+                    self.ready.extend(events);
+                }
                 Ok(Ok(Decoded::Rows(rows))) => {
+                    self.received += rows.len() as u64;
                     let grouper = self.grouper.as_mut().expect("long form has a grouper");
                     for row in rows {
                         if let Some(r) = grouper.push(row) {
