@@ -98,12 +98,25 @@ fn nanoaod_slice(rows: usize) -> RecordBatch {
     reader.next().unwrap().unwrap()
 }
 
+/// One long-form row: event, kind, pt, eta, phi, mass, btag, charge, truth.
+type LongRow = (
+    u64,
+    &'static str,
+    f64,
+    f64,
+    f64,
+    f64,
+    Option<f64>,
+    Option<f64>,
+    Option<&'static str>,
+);
+
 /// A hand-made long-form file: five events (jets, a fat jet, leptons, MET
 /// with covariance, weights, truth labels); with row groups of 4 rows,
 /// events straddle row groups.
 fn long_form() -> RecordBatch {
     #[rustfmt::skip]
-    let rows: [(u64, &str, f64, f64, f64, f64, Option<f64>, Option<f64>, Option<&str>); 15] = [
+    let rows: [LongRow; 15] = [
         (7, "jet", 61.5, 0.4, 1.2, 8.1, Some(0.91), None, Some("b_had")),
         (7, "jet", 45.0, -1.1, -2.0, 6.3, Some(0.05), None, Some("q1")),
         (7, "electron", 38.2, 0.7, 0.1, 0.000511, None, Some(-1.0), None),
